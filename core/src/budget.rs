@@ -1,0 +1,303 @@
+//! The budget of the locked laser: laser noise the servo leaves, projection noise and the
+//! Dick effect combined into sigma_y(tau) and mod sigma_y(tau) with a breakdown.
+//!
+//! Model (common practice): an integrating servo of attack time T_s acts as a first-order
+//! loop, H(f) = 1/(1 + i 2 pi f T_s). The locked laser's fractional frequency has the
+//! spectrum S_lock(f) = |1 - H|^2 S_laser(f) + |H|^2 h0_atoms, where the atom-side noise
+//! is white with h0_atoms = 2 (sigma_QPN,1s^2 + sigma_Dick,1s^2). The mechanisms are
+//! independent, so their variances add. A linear drift D of the free laser leaves a
+//! constant lag D T_s behind a first-order integrator and no Allan variance.
+
+use crate::allan::{allan_variance_lowpass_white, allan_variance_power_law, variance, Variance};
+use crate::design::Design;
+use crate::dick::dick_sum;
+use crate::error::{Checker, InputError};
+use crate::noise::Spectrum;
+use crate::projection::{operating_point, projection_noise, Readout};
+use crate::result::*;
+use crate::sensitivity::SensitivityFunction;
+use crate::sequence::Probe;
+use std::f64::consts::PI;
+
+/// One day, s.
+pub const DAY_S: f64 = 86_400.0;
+/// Averaging times of the comparison checkpoints, s.
+pub const CHECKPOINTS_S: [f64; 3] = [1.0, 1000.0, DAY_S];
+
+/// Caps on evaluation options.
+pub mod caps {
+    pub const MAX_TAU_POINTS: usize = 400;
+    pub const MAX_PLOT_POINTS: usize = 4000;
+    pub const MAX_TAU_S: f64 = 1e9;
+}
+
+fn check_options(o: &EvalOptions, cycle: f64) -> Result<(), InputError> {
+    let mut c = Checker::new();
+    c.above("options.target_instability", o.target_instability, 0.0, 1e-6, "");
+    if o.tau_points < 2 || o.tau_points > caps::MAX_TAU_POINTS {
+        c.push("options.tau_points", o.tau_points.to_string(), format!("must be from 2 to {}", caps::MAX_TAU_POINTS));
+    }
+    if c.range("options.tau_max_s", o.tau_max_s, 0.0, caps::MAX_TAU_S, "s") && o.tau_max_s <= cycle {
+        c.push("options.tau_max_s", format!("{} s", o.tau_max_s), format!("must exceed one cycle ({cycle} s)"));
+    }
+    if o.plot_points < 16 || o.plot_points > caps::MAX_PLOT_POINTS {
+        c.push("options.plot_points", o.plot_points.to_string(), format!("must be from 16 to {}", caps::MAX_PLOT_POINTS));
+    }
+    c.finish()
+}
+
+/// The parts of a budget that do not depend on tau.
+struct Model {
+    spec: Spectrum,
+    attack_s: f64,
+    h0_projection: f64,
+    h0_dick: f64,
+    features: Vec<f64>,
+    drift: f64,
+}
+
+impl Model {
+    fn highpass(&self, f: f64) -> f64 {
+        let x = 2.0 * PI * f * self.attack_s;
+        let x2 = x * x;
+        x2 / (1.0 + x2)
+    }
+    fn laser_var(&self, tau: f64) -> f64 {
+        variance(&|f| self.spec.s_y(f) * self.highpass(f), tau, Variance::Allan, &self.features)
+    }
+    fn projection_var(&self, tau: f64) -> f64 {
+        allan_variance_lowpass_white(self.h0_projection, tau, self.attack_s)
+    }
+    fn dick_var(&self, tau: f64) -> f64 {
+        allan_variance_lowpass_white(self.h0_dick, tau, self.attack_s)
+    }
+    fn parts(&self, tau: f64) -> [f64; 3] {
+        [self.laser_var(tau), self.projection_var(tau), self.dick_var(tau)]
+    }
+    fn total(&self, tau: f64) -> f64 {
+        libm::sqrt(self.parts(tau).iter().sum())
+    }
+    fn mod_total(&self, tau: f64) -> f64 {
+        let h0 = self.h0_projection + self.h0_dick;
+        let s = |f: f64| {
+            let hp = self.highpass(f);
+            self.spec.s_y(f) * hp + h0 * (1.0 - hp)
+        };
+        libm::sqrt(variance(&s, tau, Variance::Modified, &self.features))
+    }
+    /// Free-running laser, drift included: closed forms for the power laws
+    /// (IEEE Std 1139-2008), the transfer-function integral for a table.
+    fn free_var(&self, tau: f64, with_drift: bool) -> f64 {
+        let mut v: f64 = self.spec.terms.iter().map(|&(a, h)| allan_variance_power_law(a, h, tau, self.spec.f_high)).sum();
+        if self.spec.table.is_some() {
+            let table_only = Spectrum { terms: Vec::new(), table: self.spec.table.clone(), f_high: self.spec.f_high };
+            v += variance(&|f| table_only.s_y(f), tau, Variance::Allan, &self.features);
+        }
+        if with_drift {
+            v += self.drift * self.drift * tau * tau / 2.0;
+        }
+        v
+    }
+}
+
+fn dominant(parts: &[f64; 3]) -> Mechanism {
+    let mut k = 0;
+    for i in 1..3 {
+        if parts[i] > parts[k] {
+            k = i;
+        }
+    }
+    [Mechanism::Laser, Mechanism::Projection, Mechanism::Dick][k]
+}
+
+fn log_grid(a: f64, b: f64, n: usize) -> Vec<f64> {
+    let (la, lb) = (libm::log(a), libm::log(b));
+    (0..n).map(|k| libm::exp(la + (lb - la) * k as f64 / (n - 1) as f64)).collect()
+}
+
+/// Evaluates a design: validates it, then computes the whole budget.
+///
+/// ```
+/// let d = &clockwright_core::demo::designs()[0];
+/// let e = clockwright_core::evaluate(d, &Default::default()).unwrap();
+/// assert!(e.sigma_1s_equivalent > 1e-17 && e.sigma_1s_equivalent < 1e-14);
+/// ```
+pub fn evaluate(d: &Design, opt: &EvalOptions) -> Result<Evaluation, InputError> {
+    d.validate()?;
+    let cycle = d.cycle_time_s();
+    check_options(opt, cycle)?;
+    let nu0 = d.transition.frequency_hz;
+    let probe = Probe::from_design(d);
+    let ro = Readout::from_design(d);
+    let op = operating_point(&probe, &ro, d.lock.operating_point)?;
+    let proj = projection_noise(d, &op, cycle);
+    let gf = SensitivityFunction::new(&probe, op.detuning_hz)?;
+    let spec = Spectrum::from_laser(&d.laser, nu0);
+    let dick = dick_sum(&gf, &spec);
+    let sigma_dick_1s = libm::sqrt(dick.variance_coefficient);
+    let attack_s = d.lock.attack_time_s;
+    let mut features = spec.breakpoints();
+    features.push(1.0 / (2.0 * PI * attack_s));
+    let model = Model {
+        spec,
+        attack_s,
+        h0_projection: 2.0 * proj.sigma_1s * proj.sigma_1s,
+        h0_dick: 2.0 * dick.variance_coefficient,
+        features,
+        drift: d.laser.drift_per_s,
+    };
+
+    let taus = log_grid(cycle, opt.tau_max_s, opt.tau_points);
+    let mut curve = Curve { tau_s: taus.clone(), total: vec![], laser: vec![], projection: vec![], dick: vec![], mod_total: vec![], free_laser: vec![] };
+    for &tau in &taus {
+        let p = model.parts(tau);
+        curve.laser.push(libm::sqrt(p[0]));
+        curve.projection.push(libm::sqrt(p[1]));
+        curve.dick.push(libm::sqrt(p[2]));
+        curve.total.push(libm::sqrt(p.iter().sum()));
+        curve.mod_total.push(model.mod_total(tau));
+        curve.free_laser.push(libm::sqrt(model.free_var(tau, true)));
+    }
+    let sigma_1s_equivalent = libm::sqrt(proj.sigma_1s * proj.sigma_1s + sigma_dick_1s * sigma_dick_1s);
+
+    let checkpoints = CHECKPOINTS_S
+        .iter()
+        .map(|&tau| {
+            let p = model.parts(tau);
+            Checkpoint {
+                tau_s: tau,
+                total: libm::sqrt(p.iter().sum()),
+                laser: libm::sqrt(p[0]),
+                projection: libm::sqrt(p[1]),
+                dick: libm::sqrt(p[2]),
+                dominant: dominant(&p),
+            }
+        })
+        .collect::<Vec<_>>();
+
+    let target = time_to_target(&model, &curve, opt.target_instability, sigma_1s_equivalent);
+
+    // Laser coherence over the probe: phase of the free laser's frequency wander between
+    // consecutive probes, 2 pi nu0 N T sqrt(2) sigma_y(T) (common practice).
+    let n_phase = probe.detuning_factor;
+    let probe_s = probe.duration_s();
+    let phase_rms = |t: f64| 2.0 * PI * nu0 * n_phase * t * libm::sqrt(2.0 * model.free_var(t, false));
+    let probe_phase_rms_rad = phase_rms(probe_s);
+    let coherence_probe_limit_s = {
+        let (mut a, mut b) = (libm::log(1e-7), libm::log(1e5));
+        if phase_rms(libm::exp(b)) < 1.0 {
+            None
+        } else if phase_rms(libm::exp(a)) > 1.0 {
+            Some(libm::exp(a))
+        } else {
+            for _ in 0..60 {
+                let m = (a + b) / 2.0;
+                if phase_rms(libm::exp(m)) < 1.0 { a = m } else { b = m }
+            }
+            Some(libm::exp((a + b) / 2.0))
+        }
+    };
+    let probe_over_lifetime = d.transition.lifetime_s.map(|t| probe_s / t).unwrap_or(0.0);
+    let servo_lag_fractional = d.laser.drift_per_s * attack_s;
+    let mut notes = Vec::new();
+    if probe_phase_rms_rad > 1.0 {
+        notes.push(format!(
+            "The laser's RMS phase excursion over the probe is {probe_phase_rms_rad:.2} rad (above 1 rad): fringe hops are likely and this linear budget is optimistic."
+        ));
+    }
+    if probe_over_lifetime > 0.5 {
+        notes.push(format!("The probe lasts {probe_over_lifetime:.2} excited-state lifetimes: decay lowers the contrast; longer probes gain little."));
+    }
+    let dead = cycle - probe_s;
+    if dead / cycle > 0.5 {
+        notes.push(format!("Dead time is {:.0}% of the cycle; the Dick effect grows with it.", 100.0 * dead / cycle));
+    }
+    if dick.truncation_bound_relative > crate::dick::TOLERANCE {
+        notes.push(format!(
+            "The Dick sum stopped at {} harmonics with a relative truncation bound of {:.1e}.",
+            dick.harmonics_summed, dick.truncation_bound_relative
+        ));
+    }
+    if servo_lag_fractional != 0.0 {
+        notes.push(format!("The laser drift leaves a constant servo lag of {servo_lag_fractional:.2e} (fractional) behind the integrator."));
+    }
+    let dominant_1s = checkpoints[0].dominant;
+    notes.push(format!(
+        "At 1 s the budget is dominated by {}.",
+        match dominant_1s {
+            Mechanism::Laser => "laser noise the servo does not remove",
+            Mechanism::Projection => "quantum projection noise",
+            Mechanism::Dick => "the Dick effect",
+        }
+    ));
+
+    // Plots: g(t) over the cycle and the line shape.
+    let n = opt.plot_points;
+    let gmax = gf.max_abs().max(1e-300);
+    let t_s: Vec<f64> = (0..n).map(|k| cycle * k as f64 / (n - 1) as f64).collect();
+    let g: Vec<f64> = t_s.iter().map(|&t| gf.at(t.min(cycle * (1.0 - 1e-12))) / gmax).collect();
+    let span = 3.0 * op.edge_hz;
+    let detuning_hz: Vec<f64> = (0..n).map(|k| -span + 2.0 * span * k as f64 / (n - 1) as f64).collect();
+    let excitation: Vec<f64> = detuning_hz.iter().map(|&nu| probe.excitation(nu)).collect();
+    let measured = excitation.iter().map(|&p| ro.measured(p)).collect();
+
+    Ok(Evaluation {
+        cycle_time_s: cycle,
+        probe_time_s: probe_s,
+        dead_time_s: dead,
+        operating_point: OperatingPoint {
+            detuning_hz: op.detuning_hz,
+            excitation: op.excitation,
+            measured_excitation: op.measured,
+            slope_per_hz: op.slope,
+            best_detuning_hz: op.best_hz,
+            half_maximum_detuning_hz: op.half_max_hz,
+            peak_excitation: op.peak,
+        },
+        projection: ProjectionResult {
+            sigma_1s: proj.sigma_1s,
+            effective_atoms: proj.effective_atoms,
+            misread_ground_effective: ro.e_g,
+            misread_excited_effective: ro.e_e,
+            squeezing_factor: proj.squeezing_factor,
+        },
+        dick: DickResult {
+            sigma_1s: sigma_dick_1s,
+            harmonics_summed: dick.harmonics_summed,
+            truncation_bound_relative: dick.truncation_bound_relative,
+            weights: dick.weights,
+            g0: dick.g0,
+        },
+        sigma_1s_equivalent,
+        curve,
+        target,
+        limits: Limits { probe_phase_rms_rad, coherence_probe_limit_s, probe_over_lifetime, servo_lag_fractional, notes },
+        sensitivity: SensitivitySamples { t_s, g },
+        line_shape: LineShape { detuning_hz, excitation, measured },
+        checkpoints,
+    })
+}
+
+fn time_to_target(model: &Model, curve: &Curve, target: f64, sigma_1s_eq: f64) -> TargetResult {
+    let last_above = curve.total.iter().rposition(|&s| s > target);
+    match last_above {
+        None => TargetResult { target, time_s: Some(curve.tau_s[0]), note: "below the target from the first cycle on".into() },
+        Some(i) if i + 1 == curve.tau_s.len() => {
+            // Beyond the grid the locked laser averages as white frequency noise.
+            let t = (sigma_1s_eq / target) * (sigma_1s_eq / target);
+            if t > curve.tau_s[i] && model.total(t) <= target * (1.0 + 1e-3) {
+                TargetResult { target, time_s: Some(t), note: "extrapolated as white frequency noise beyond the last averaging time".into() }
+            } else {
+                TargetResult { target, time_s: None, note: "not reached within the modelled averaging times".into() }
+            }
+        }
+        Some(i) => {
+            let (mut a, mut b) = (libm::log(curve.tau_s[i]), libm::log(curve.tau_s[i + 1]));
+            for _ in 0..50 {
+                let m = (a + b) / 2.0;
+                if model.total(libm::exp(m)) > target { a = m } else { b = m }
+            }
+            TargetResult { target, time_s: Some(libm::exp(b)), note: "found on the computed curve".into() }
+        }
+    }
+}

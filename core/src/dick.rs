@@ -1,0 +1,320 @@
+//! The Dick effect: laser noise aliased by the periodic interrogation.
+//!
+//! sigma_y^2(tau) = (1/tau) sum_{m>=1} (|g_m|^2 / g_0^2) S_y(m / T_c)
+//! (Santarelli et al., IEEE Trans. UFFC 45, 887 (1998)), with the complex Fourier
+//! coefficients g_m = (1/T_c) integral_0^T_c g(t) exp(-2 pi i m t / T_c) dt, whose squared
+//! magnitude equals (g_m^c)^2 + (g_m^s)^2 of the cosine/sine form.
+//!
+//! The harmonics are integrated in closed form on every polynomial piece of g(t). The
+//! sum is not cut off at a fixed harmonic: two tail sums are known exactly from Parseval's
+//! theorem, T0 = sum_{m>M} |g_m|^2 (from the integral of g^2) and T2 = sum_{m>M} |g_m|^2/m^2
+//! (from the integral of the squared antiderivative of g - g0), and they bound the tail of
+//! every power law m^a with -2 <= a <= 0 from both sides (Hoelder's inequality above,
+//! monotonicity below); terms with a > 0 stop at the high cut-off and are bounded by
+//! m_h^a T0. The estimate of the tail uses |g_m|^2 ~ m^-q fitted to T0 and T2, clipped to
+//! the bounds, and the half-width of the bounds is reported as the truncation error.
+
+use crate::noise::Spectrum;
+use crate::sensitivity::{SensitivityFunction, DEGREE};
+use num_complex::Complex64;
+use std::f64::consts::PI;
+
+/// Most harmonics summed one by one.
+pub const MAX_HARMONICS: usize = 1 << 16;
+/// Relative truncation error at which the sum stops.
+pub const TOLERANCE: f64 = 1e-6;
+/// Number of weights |g_m|^2/g_0^2 returned for display.
+pub const WEIGHTS_SHOWN: usize = 64;
+
+/// Result of the Dick sum.
+#[derive(Debug, Clone, PartialEq)]
+pub struct DickSum {
+    /// D such that sigma_y^2(tau) = D / tau, 1/Hz... (s): the aliased noise is white with h0 = 2 D.
+    pub variance_coefficient: f64,
+    pub harmonics_summed: usize,
+    pub truncation_bound_relative: f64,
+    pub weights: Vec<f64>,
+    pub g0: f64,
+}
+
+/// Moments mu_n(theta) = integral_0^1 s^n exp(-i theta s) ds for n = 0..=nmax, with
+/// `e` = exp(-i theta). Upward recurrence where it is stable (|theta| > nmax + 1),
+/// downward recurrence from a far start otherwise (errors damp by |theta|/n per step).
+fn moments(theta: f64, e: Complex64, nmax: usize, out: &mut [Complex64]) {
+    let i_theta = Complex64::new(0.0, theta);
+    if theta.abs() > nmax as f64 + 1.0 {
+        out[0] = (Complex64::new(1.0, 0.0) - e) / i_theta;
+        for n in 1..=nmax {
+            out[n] = (out[n - 1] * n as f64 - e) / i_theta;
+        }
+    } else {
+        let big = nmax + 40;
+        let mut mu = e / Complex64::new(big as f64 + 1.0, -theta);
+        for n in (1..=big).rev() {
+            mu = (i_theta * mu + e) / n as f64;
+            if n - 1 <= nmax {
+                out[n - 1] = mu;
+            }
+        }
+    }
+}
+
+/// Exact integrals over one cycle used by the tail bounds.
+struct Parseval {
+    g0: f64,
+    /// sum_{m>=1} |g_m|^2
+    s0: f64,
+    /// sum_{m>=1} |g_m|^2 / m^2
+    s2: f64,
+}
+
+fn parseval(gf: &SensitivityFunction) -> Parseval {
+    let tc = gf.cycle_s;
+    let mut c0 = 0.0;
+    let mut g2 = 0.0;
+    for p in &gf.pieces {
+        let w = p.h / tc;
+        for (n, a) in p.coef.iter().enumerate() {
+            c0 += w * a / (n + 1) as f64;
+            for (k, b) in p.coef.iter().enumerate() {
+                g2 += w * a * b / (n + k + 1) as f64;
+            }
+        }
+    }
+    // Antiderivative H(u) of G - g0 in cycle units, piece by piece.
+    let mut h_start = 0.0;
+    let mut ih = 0.0;
+    let mut ih2 = 0.0;
+    let mut b = [0.0; DEGREE + 2];
+    for p in &gf.pieces {
+        let w = p.h / tc;
+        let len = p.coef.len().max(1) + 1;
+        b[..len].fill(0.0);
+        b[0] = h_start;
+        b[1] = -w * g0_of(c0);
+        for (n, a) in p.coef.iter().enumerate() {
+            b[n + 1] += w * a / (n + 1) as f64;
+        }
+        for n in 0..len {
+            ih += w * b[n] / (n + 1) as f64;
+            for k in 0..len {
+                ih2 += w * b[n] * b[k] / (n + k + 1) as f64;
+            }
+        }
+        h_start = b[..len].iter().sum();
+    }
+    Parseval { g0: c0, s0: ((g2 - c0 * c0) / 2.0).max(0.0), s2: ((2.0 * PI * 2.0 * PI / 2.0) * (ih2 - ih * ih)).max(0.0) }
+}
+
+#[inline]
+fn g0_of(c0: f64) -> f64 {
+    c0
+}
+
+/// Incremental generator of g_1, g_2, ... .
+struct Harmonics<'a> {
+    gf: &'a SensitivityFunction,
+    /// Per piece with g != 0: index, exp(-i w1 t0), current exp(-i wm t0).
+    step_t0: Vec<Complex64>,
+    cur_t0: Vec<Complex64>,
+    /// Per group: exp(-i w1 h), current exp(-i wm h), h.
+    step_h: Vec<Complex64>,
+    cur_h: Vec<Complex64>,
+    h_of: Vec<f64>,
+    deg_of: Vec<usize>,
+    active: Vec<usize>,
+    m: usize,
+    mu: Vec<Vec<Complex64>>,
+}
+
+impl<'a> Harmonics<'a> {
+    fn new(gf: &'a SensitivityFunction) -> Self {
+        let w1 = 2.0 * PI / gf.cycle_s;
+        let active: Vec<usize> = (0..gf.pieces.len()).filter(|&i| !gf.pieces[i].coef.is_empty()).collect();
+        let step_t0 = active.iter().map(|&i| cis(-w1 * gf.pieces[i].t0)).collect();
+        let cur_t0 = vec![Complex64::new(1.0, 0.0); active.len()];
+        let mut h_of = vec![0.0; gf.groups + 1];
+        let mut deg_of = vec![0usize; gf.groups + 1];
+        for &i in &active {
+            let p = &gf.pieces[i];
+            h_of[p.group] = p.h;
+            deg_of[p.group] = deg_of[p.group].max(p.coef.len() - 1);
+        }
+        let step_h = h_of.iter().map(|&h| cis(-w1 * h)).collect();
+        let cur_h = vec![Complex64::new(1.0, 0.0); h_of.len()];
+        let mu = vec![vec![Complex64::new(0.0, 0.0); DEGREE + 1]; h_of.len()];
+        Harmonics { gf, step_t0, cur_t0, step_h, cur_h, h_of, deg_of, active, m: 0, mu }
+    }
+
+    /// Returns g_{m+1}.
+    fn next(&mut self) -> Complex64 {
+        self.m += 1;
+        let m = self.m as f64;
+        let w = 2.0 * PI * m / self.gf.cycle_s;
+        // Re-anchor the running phasors now and then so rounding cannot accumulate.
+        let exact = self.m % 4096 == 0;
+        for (g, (cur, step)) in self.cur_h.iter_mut().zip(&self.step_h).enumerate() {
+            *cur = if exact { cis(-w * self.h_of[g]) } else { *cur * step };
+        }
+        for (g, &h) in self.h_of.iter().enumerate() {
+            if h > 0.0 {
+                let nmax = self.deg_of[g];
+                moments(w * h, self.cur_h[g], nmax, &mut self.mu[g]);
+            }
+        }
+        let mut c = Complex64::new(0.0, 0.0);
+        for (k, &i) in self.active.iter().enumerate() {
+            let p = &self.gf.pieces[i];
+            self.cur_t0[k] = if exact { cis(-w * p.t0) } else { self.cur_t0[k] * self.step_t0[k] };
+            let mu = &self.mu[p.group];
+            let mut s = Complex64::new(0.0, 0.0);
+            for (n, a) in p.coef.iter().enumerate() {
+                s += mu[n] * *a;
+            }
+            c += self.cur_t0[k] * s * p.h;
+        }
+        c / self.gf.cycle_s
+    }
+}
+
+/// g_1 ... g_m of `gf`, the complex Fourier coefficients.
+pub fn fourier_coefficients(gf: &SensitivityFunction, m: usize) -> Vec<Complex64> {
+    let mut h = Harmonics::new(gf);
+    (0..m).map(|_| h.next()).collect()
+}
+
+/// Lower and upper bound and estimate of sum_{m>M} |g_m|^2 S_y(m/T_c).
+fn tail(spec: &Spectrum, tc: f64, m_done: usize, t0: f64, t2: f64) -> (f64, f64, f64) {
+    if t0 <= 0.0 {
+        return (0.0, 0.0, 0.0);
+    }
+    let mf = m_done as f64;
+    let m_h = libm::floor(spec.f_high * tc);
+    let (mut lo, mut hi) = (0.0, 0.0);
+    for &(a, h) in &spec.terms {
+        let k = h * libm::pow(tc, -a as f64);
+        if a <= 0 {
+            let af = a as f64;
+            hi += k * libm::pow(t0, 1.0 + af / 2.0) * libm::pow(t2.max(0.0), -af / 2.0);
+            lo += k * libm::pow(mf + 1.0, af + 2.0) * t2.max(0.0);
+        } else if mf < m_h {
+            hi += k * libm::pow(m_h, a as f64) * t0;
+        }
+    }
+    if let Some(_t) = &spec.table {
+        let f_lo = mf / tc;
+        if f_lo < spec.f_high {
+            // Largest table value above f_lo: at a node, at f_lo, or at the cut-off.
+            let mut smax = 0.0f64;
+            let tbl = spec.table.as_ref().unwrap();
+            smax = smax.max(table_only(spec, f_lo)).max(table_only(spec, spec.f_high));
+            for &lf in &tbl.ln_f {
+                let f = libm::exp(lf);
+                if f > f_lo && f <= spec.f_high {
+                    smax = smax.max(table_only(spec, f));
+                }
+            }
+            hi += smax * t0;
+        }
+    }
+    // Estimate: |g_m|^2 ~ K m^-q fitted to t0 and t2.
+    let x0 = mf + 0.5;
+    let r = if t0 > 0.0 { t2 / t0 * x0 * x0 } else { 0.0 };
+    let est = if r > 0.0 && r < 1.0 {
+        let q = ((1.0 + r) / (1.0 - r)).clamp(1.05, 12.0);
+        let kq = t0 * (q - 1.0) * libm::pow(x0, q - 1.0);
+        let mut s = 0.0;
+        for &(a, h) in &spec.terms {
+            let k = h * libm::pow(tc, -a as f64);
+            let e = a as f64 - q + 1.0;
+            let upper = if a <= 0 { f64::INFINITY } else { m_h + 0.5 };
+            if upper <= x0 {
+                continue;
+            }
+            let integral = if e.abs() < 1e-12 {
+                libm::log(upper / x0)
+            } else if upper.is_infinite() {
+                if e < 0.0 { -libm::pow(x0, e) / e } else { 0.0 }
+            } else {
+                (libm::pow(upper, e) - libm::pow(x0, e)) / e
+            };
+            s += k * kq * integral;
+        }
+        if spec.table.is_some() && x0 < m_h + 0.5 {
+            s += kq * log_quadrature(|x| libm::pow(x, -q) * table_only(spec, x / tc), x0, m_h + 0.5);
+        }
+        s
+    } else {
+        (lo + hi) / 2.0
+    };
+    (lo, hi, est.clamp(lo, hi.max(lo)))
+}
+
+fn table_only(spec: &Spectrum, f: f64) -> f64 {
+    let no_terms = Spectrum { terms: Vec::new(), table: spec.table.clone(), f_high: spec.f_high };
+    no_terms.s_y(f)
+}
+
+/// integral_a^b f(x) dx on log-spaced panels with 8-point Gauss-Legendre each.
+pub(crate) fn log_quadrature(f: impl Fn(f64) -> f64, a: f64, b: f64) -> f64 {
+    if b <= a {
+        return 0.0;
+    }
+    let (la, lb) = (libm::log(a), libm::log(b));
+    let panels = (libm::ceil((lb - la) / 0.5) as usize).clamp(1, 200);
+    let w = (lb - la) / panels as f64;
+    let mut s = 0.0;
+    for k in 0..panels {
+        let c = la + (k as f64 + 0.5) * w;
+        for (x, wt) in crate::allan::GL8 {
+            let lx = c + x * w / 2.0;
+            let xv = libm::exp(lx);
+            s += wt * w / 2.0 * f(xv) * xv;
+        }
+    }
+    s
+}
+
+/// The Dick variance coefficient of `gf` with the laser spectrum `spec`.
+pub fn dick_sum(gf: &SensitivityFunction, spec: &Spectrum) -> DickSum {
+    let tc = gf.cycle_s;
+    let pv = parseval(gf);
+    let g0 = pv.g0;
+    let mut harm = Harmonics::new(gf);
+    let (mut p0, mut p2, mut d) = (0.0, 0.0, 0.0);
+    let mut weights = Vec::new();
+    let mut m = 0usize;
+    let mut checkpoint = 32usize;
+    let mut bound = f64::INFINITY;
+    let mut total = 0.0;
+    while m < MAX_HARMONICS {
+        let c = harm.next();
+        m += 1;
+        let c2 = c.norm_sqr();
+        if weights.len() < WEIGHTS_SHOWN {
+            weights.push(c2 / (g0 * g0));
+        }
+        p0 += c2;
+        p2 += c2 / (m as f64 * m as f64);
+        d += c2 * spec.s_y(m as f64 / tc);
+        if m == checkpoint || m == MAX_HARMONICS {
+            let t0 = (pv.s0 - p0).max(0.0);
+            let t2 = (pv.s2 - p2).max(0.0);
+            let (lo, hi, est) = tail(spec, tc, m, t0, t2);
+            total = d + est;
+            let half = (hi - est).max(est - lo).max(0.0);
+            bound = if total > 0.0 { half / total } else { 0.0 };
+            if bound <= TOLERANCE {
+                break;
+            }
+            checkpoint = checkpoint.saturating_mul(2);
+        }
+    }
+    DickSum { variance_coefficient: total / (g0 * g0), harmonics_summed: m, truncation_bound_relative: bound, weights, g0 }
+}
+
+/// exp(i x) through libm, so native and wasm builds agree.
+#[inline]
+fn cis(x: f64) -> Complex64 {
+    Complex64::new(libm::cos(x), libm::sin(x))
+}

@@ -1,0 +1,208 @@
+//! Line shape, operating point and the quantum projection noise limit.
+//!
+//! sigma_y(tau) = sqrt(xi^2 P'(1 - P') / N) / (nu0 |dP'/dnu|) * sqrt(T_c / tau)
+//! (Itano et al., Phys. Rev. A 47, 3554 (1993)), where P' = e_g + (1 - e_g - e_e) P is
+//! the probability of reading "excited" with misassignment probabilities e_g (ground
+//! read as excited) and e_e (excited read as ground) after a majority vote over the
+//! detection rounds, and xi^2 the squeezing factor (Phys. Rev. A 50, 67 (1994)). A GHZ
+//! state of N atoms is treated as one two-level system with N-fold detuning, read once.
+
+use crate::design::{Design, Entanglement, OperatingPointRule};
+use crate::error::InputError;
+use crate::sequence::Probe;
+
+/// Grid points on the central feature when searching the operating point.
+const SEARCH_POINTS: usize = 256;
+
+/// Misassignment probability after a majority vote over `rounds` independent rounds
+/// with per-round error `e` (ties of an even count decided by a fair coin).
+pub fn majority_error(e: f64, rounds: u32) -> f64 {
+    let n = rounds.max(1);
+    let mut total = 0.0;
+    // Binomial terms by recurrence: C(n,k) e^k (1-e)^(n-k).
+    let mut term = libm::pow(1.0 - e, n as f64); // k = 0
+    for k in 0..=n {
+        if k > 0 {
+            term *= (n - k + 1) as f64 / k as f64 * e / (1.0 - e);
+        }
+        if 2 * k > n {
+            total += term;
+        } else if 2 * k == n {
+            total += 0.5 * term;
+        }
+    }
+    total.clamp(0.0, 1.0)
+}
+
+/// Detection model: measured = e_g + (1 - e_g - e_e) P.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct Readout {
+    pub e_g: f64,
+    pub e_e: f64,
+}
+
+impl Readout {
+    pub fn from_design(d: &Design) -> Readout {
+        Readout { e_g: majority_error(d.detection.misread_ground, d.detection.rounds), e_e: majority_error(d.detection.misread_excited, d.detection.rounds) }
+    }
+    #[inline]
+    pub fn measured(&self, p: f64) -> f64 {
+        self.e_g + (1.0 - self.e_g - self.e_e) * p
+    }
+    #[inline]
+    pub fn contrast(&self) -> f64 {
+        1.0 - self.e_g - self.e_e
+    }
+}
+
+/// The operating point and the numbers at it.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct Operating {
+    pub detuning_hz: f64,
+    pub excitation: f64,
+    pub measured: f64,
+    /// d(measured)/d(nu), 1/Hz.
+    pub slope: f64,
+    pub best_hz: f64,
+    pub half_max_hz: f64,
+    pub peak: f64,
+    /// Edge of the central feature (first extremum away from line centre), Hz.
+    pub edge_hz: f64,
+}
+
+fn slope(probe: &Probe, ro: &Readout, nu: f64, step: f64) -> f64 {
+    ro.contrast() * (probe.excitation(nu + step) - probe.excitation(nu - step)) / (2.0 * step)
+}
+
+/// Figure of merit |dP'/dnu| / sqrt(P'(1-P')), or 0 where it is undefined.
+fn merit(probe: &Probe, ro: &Readout, nu: f64, step: f64) -> f64 {
+    let pm = ro.measured(probe.excitation(nu));
+    let var = pm * (1.0 - pm);
+    if var <= 1e-300 {
+        return 0.0;
+    }
+    slope(probe, ro, nu, step).abs() / libm::sqrt(var)
+}
+
+/// Finds the central feature, its best slope-to-noise and half-maximum points, and the
+/// operating point the design asks for.
+pub fn operating_point(probe: &Probe, ro: &Readout, rule: OperatingPointRule) -> Result<Operating, InputError> {
+    let w = probe.width_scale_hz();
+    let step = w * 1e-5;
+    let p0 = probe.excitation(0.0);
+    // Edge of the central feature: walk outwards until the excitation turns.
+    let span = 4.0 * w;
+    let n = 4 * SEARCH_POINTS;
+    let mut prev = p0;
+    let rising = probe.excitation(span / n as f64) > p0;
+    let mut edge = span;
+    for k in 1..=n {
+        let nu = span * k as f64 / n as f64;
+        let p = probe.excitation(nu);
+        let turned = if rising { p < prev } else { p > prev };
+        if turned {
+            edge = span * (k - 1) as f64 / n as f64;
+            break;
+        }
+        prev = p;
+    }
+    let p_edge = probe.excitation(edge);
+    if (p0 - p_edge).abs() < 1e-6 {
+        return Err(InputError::single(
+            "sequence.segments",
+            format!("central feature of height {:.2e}", (p0 - p_edge).abs()),
+            "the sequence gives no usable line: the excitation hardly changes with detuning",
+        ));
+    }
+    // Best slope-to-noise on a grid over the feature, refined by golden section.
+    let mut best_k = 1;
+    let mut best_m = -1.0;
+    let mut merits = Vec::with_capacity(SEARCH_POINTS);
+    for k in 1..SEARCH_POINTS {
+        let nu = edge * k as f64 / SEARCH_POINTS as f64;
+        let m = merit(probe, ro, nu, step);
+        merits.push((nu, m));
+        if m > best_m {
+            best_m = m;
+            best_k = k;
+        }
+    }
+    // Where the merit is flat to 1e-6 (ideal Ramsey), prefer the point nearest half height.
+    let half_level = (p0 + p_edge) / 2.0;
+    let flat: Vec<&(f64, f64)> = merits.iter().filter(|(_, m)| *m >= best_m * (1.0 - 1e-6)).collect();
+    let best_hz = if flat.len() > 2 {
+        flat.iter().min_by(|a, b| {
+            let da = (probe.excitation(a.0) - half_level).abs();
+            let db = (probe.excitation(b.0) - half_level).abs();
+            da.partial_cmp(&db).unwrap_or(std::cmp::Ordering::Equal)
+        }).map(|x| x.0).unwrap_or(edge / 2.0)
+    } else {
+        let lo = edge * (best_k.saturating_sub(1)) as f64 / SEARCH_POINTS as f64;
+        let hi = edge * ((best_k + 1).min(SEARCH_POINTS)) as f64 / SEARCH_POINTS as f64;
+        golden_max(|nu| merit(probe, ro, nu, step), lo.max(step * 2.0), hi)
+    };
+    // Half maximum by bisection on the monotone flank.
+    let (mut a, mut b) = (0.0, edge);
+    for _ in 0..60 {
+        let mid = (a + b) / 2.0;
+        let above = (probe.excitation(mid) - half_level) * (p0 - half_level) > 0.0;
+        if above { a = mid } else { b = mid }
+    }
+    let half_max_hz = (a + b) / 2.0;
+    let nu = match rule {
+        OperatingPointRule::BestSlopeToNoise => best_hz,
+        OperatingPointRule::HalfMaximum => half_max_hz,
+    };
+    let p = probe.excitation(nu);
+    let s = slope(probe, ro, nu, step);
+    if s.abs() * w < 1e-9 {
+        return Err(InputError::single("lock.operating_point", format!("{nu:.3e} Hz"), "the line has no slope at the operating point"));
+    }
+    Ok(Operating { detuning_hz: nu, excitation: p, measured: ro.measured(p), slope: s, best_hz, half_max_hz, peak: p0.max(p_edge), edge_hz: edge })
+}
+
+fn golden_max(f: impl Fn(f64) -> f64, mut a: f64, mut b: f64) -> f64 {
+    let r = 0.618_033_988_749_894_8;
+    let mut c = b - r * (b - a);
+    let mut d = a + r * (b - a);
+    let (mut fc, mut fd) = (f(c), f(d));
+    for _ in 0..60 {
+        if fc > fd {
+            b = d;
+            d = c;
+            fd = fc;
+            c = b - r * (b - a);
+            fc = f(c);
+        } else {
+            a = c;
+            c = d;
+            fc = fd;
+            d = a + r * (b - a);
+            fd = f(d);
+        }
+        if (b - a).abs() < 1e-10 * b.abs().max(1e-300) {
+            break;
+        }
+    }
+    (a + b) / 2.0
+}
+
+/// Projection-noise numbers of a design at an operating point.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct Projection {
+    pub sigma_1s: f64,
+    pub effective_atoms: f64,
+    pub squeezing_factor: f64,
+}
+
+/// sigma_y at 1 s from projection noise (white frequency noise: sigma(tau) = sigma_1s/sqrt(tau)).
+pub fn projection_noise(d: &Design, op: &Operating, cycle_s: f64) -> Projection {
+    let (n_eff, xi2) = match d.atoms.entanglement {
+        Entanglement::None => (d.atoms.count as f64, 1.0),
+        Entanglement::Squeezed { gain_db } => (d.atoms.count as f64, libm::pow(10.0, -gain_db / 10.0)),
+        Entanglement::Ghz => (1.0, 1.0),
+    };
+    let pm = op.measured;
+    let sigma = libm::sqrt(xi2 * pm * (1.0 - pm) / n_eff) / (d.transition.frequency_hz * op.slope.abs()) * libm::sqrt(cycle_s);
+    Projection { sigma_1s: sigma, effective_atoms: n_eff, squeezing_factor: xi2 }
+}

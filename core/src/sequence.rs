@@ -1,0 +1,319 @@
+//! Two-level dynamics of the interrogation sequence: Bloch-vector propagation with
+//! optional decay of the excited state, the line shape P(detuning), and presets.
+//!
+//! Conventions: the Bloch vector r = (u, v, w) with w = P_e - P_g; the atoms start in
+//! the ground state (0, 0, -1). In the frame of the laser, a segment with Rabi frequency
+//! Omega (rad/s), phase phi and detuning delta = omega_laser - omega_atom (rad/s) turns r
+//! about (Omega cos phi, Omega sin phi, -delta). Decay of the excited state at rate
+//! Gamma = 1/lifetime damps u and v at Gamma/2 and relaxes w to -1 at Gamma (optical
+//! Bloch equations with amplitude damping).
+
+use crate::design::{Design, Entanglement, Segment};
+use serde::{Deserialize, Serialize};
+use std::f64::consts::PI;
+
+/// An affine map of the Bloch vector, r -> m r + c.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct Affine {
+    pub m: [[f64; 3]; 3],
+    pub c: [f64; 3],
+}
+
+impl Affine {
+    pub const IDENTITY: Affine = Affine { m: [[1.0, 0.0, 0.0], [0.0, 1.0, 0.0], [0.0, 0.0, 1.0]], c: [0.0; 3] };
+
+    #[inline]
+    pub fn apply(&self, r: [f64; 3]) -> [f64; 3] {
+        let m = &self.m;
+        [
+            m[0][0] * r[0] + m[0][1] * r[1] + m[0][2] * r[2] + self.c[0],
+            m[1][0] * r[0] + m[1][1] * r[1] + m[1][2] * r[2] + self.c[1],
+            m[2][0] * r[0] + m[2][1] * r[1] + m[2][2] * r[2] + self.c[2],
+        ]
+    }
+
+    /// Applies the transpose of the linear part (propagates a costate backwards).
+    #[inline]
+    pub fn apply_transpose(&self, l: [f64; 3]) -> [f64; 3] {
+        let m = &self.m;
+        [
+            m[0][0] * l[0] + m[1][0] * l[1] + m[2][0] * l[2],
+            m[0][1] * l[0] + m[1][1] * l[1] + m[2][1] * l[2],
+            m[0][2] * l[0] + m[1][2] * l[1] + m[2][2] * l[2],
+        ]
+    }
+}
+
+/// One constant piece of the probe: drive on (pulse) or off (free evolution).
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct Step {
+    pub duration_s: f64,
+    /// Rabi frequency, rad/s (0 for free evolution).
+    pub omega: f64,
+    /// Drive phase, rad.
+    pub phase: f64,
+    /// Extra detuning during this step, rad/s.
+    pub offset: f64,
+}
+
+/// The generator of one step at a given detuning: dr/dt = a r + b, with b = (0, 0, -gamma).
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct Generator {
+    pub a: [[f64; 3]; 3],
+    pub gamma: f64,
+    /// Rotation vector (Omega cos phi, Omega sin phi, -delta), rad/s.
+    pub axis: [f64; 3],
+}
+
+impl Generator {
+    pub fn new(step: &Step, detuning: f64, gamma: f64) -> Generator {
+        let delta = detuning + step.offset;
+        let axis = [step.omega * libm::cos(step.phase), step.omega * libm::sin(step.phase), -delta];
+        let [x, y, z] = axis;
+        let h = gamma / 2.0;
+        let a = [[-h, -z, y], [z, -h, -x], [-y, x, -gamma]];
+        Generator { a, gamma, axis }
+    }
+
+    /// Largest rate in the generator, rad/s: bounds how fast g(t) can vary.
+    pub fn rate(&self) -> f64 {
+        let [x, y, z] = self.axis;
+        libm::sqrt(x * x + y * y + z * z) + self.gamma
+    }
+
+    /// The exact propagator over time `t`.
+    pub fn propagator(&self, t: f64) -> Affine {
+        if self.gamma == 0.0 {
+            rotation(self.axis, t)
+        } else {
+            expm_affine(&self.a, self.gamma, t)
+        }
+    }
+}
+
+/// Rotation about `axis` by |axis| t (Rodrigues' formula).
+fn rotation(axis: [f64; 3], t: f64) -> Affine {
+    let n2 = axis[0] * axis[0] + axis[1] * axis[1] + axis[2] * axis[2];
+    if n2 == 0.0 {
+        return Affine::IDENTITY;
+    }
+    let n = libm::sqrt(n2);
+    let th = n * t;
+    let (s, c) = (libm::sin(th), libm::cos(th));
+    let k = [axis[0] / n, axis[1] / n, axis[2] / n];
+    let kx = [[0.0, -k[2], k[1]], [k[2], 0.0, -k[0]], [-k[1], k[0], 0.0]];
+    let mut m = [[0.0; 3]; 3];
+    for i in 0..3 {
+        for j in 0..3 {
+            let k2 = k[i] * k[j] - if i == j { 1.0 } else { 0.0 };
+            m[i][j] = if i == j { 1.0 } else { 0.0 } + s * kx[i][j] + (1.0 - c) * k2;
+        }
+    }
+    Affine { m, c: [0.0; 3] }
+}
+
+type M4 = [[f64; 4]; 4];
+
+fn mul4(a: &M4, b: &M4) -> M4 {
+    let mut r = [[0.0; 4]; 4];
+    for i in 0..4 {
+        for k in 0..4 {
+            let aik = a[i][k];
+            if aik == 0.0 {
+                continue;
+            }
+            for j in 0..4 {
+                r[i][j] += aik * b[k][j];
+            }
+        }
+    }
+    r
+}
+
+/// exp of the augmented generator [[a, b], [0, 0]] t, by scaling and squaring of a
+/// Taylor series (truncation below 1e-19 after scaling the norm under 1/2).
+fn expm_affine(a: &[[f64; 3]; 3], gamma: f64, t: f64) -> Affine {
+    let mut x = [[0.0; 4]; 4];
+    for i in 0..3 {
+        for j in 0..3 {
+            x[i][j] = a[i][j] * t;
+        }
+    }
+    x[2][3] = -gamma * t;
+    let norm = (0..4).map(|i| x[i].iter().map(|v| v.abs()).sum::<f64>()).fold(0.0, f64::max);
+    let mut s = 0u32;
+    if norm > 0.5 {
+        s = (libm::ceil(libm::log2(norm / 0.5)) as i64).clamp(0, 200) as u32;
+    }
+    let scale = libm::ldexp(1.0, -(s as i32));
+    for row in x.iter_mut() {
+        for v in row.iter_mut() {
+            *v *= scale;
+        }
+    }
+    // Taylor series to order 18.
+    let mut e = [[0.0; 4]; 4];
+    let mut term = [[0.0; 4]; 4];
+    for i in 0..4 {
+        e[i][i] = 1.0;
+        term[i][i] = 1.0;
+    }
+    for k in 1..=18 {
+        term = mul4(&term, &x);
+        let inv = 1.0 / k as f64;
+        for row in term.iter_mut() {
+            for v in row.iter_mut() {
+                *v *= inv;
+            }
+        }
+        for i in 0..4 {
+            for j in 0..4 {
+                e[i][j] += term[i][j];
+            }
+        }
+    }
+    for _ in 0..s {
+        e = mul4(&e, &e);
+    }
+    let mut m = [[0.0; 3]; 3];
+    for i in 0..3 {
+        for j in 0..3 {
+            m[i][j] = e[i][j];
+        }
+    }
+    Affine { m, c: [e[0][3], e[1][3], e[2][3]] }
+}
+
+/// The probe part of a cycle (first pulse to last pulse) and the cycle's timing.
+#[derive(Debug, Clone, PartialEq)]
+pub struct Probe {
+    pub steps: Vec<Step>,
+    /// Decay rate of the excited state, 1/s.
+    pub gamma: f64,
+    /// Factor on the laser detuning seen by the atoms (N for a GHZ state, else 1).
+    pub detuning_factor: f64,
+    /// Start of the first pulse within the cycle, s.
+    pub start_s: f64,
+    /// Cycle time, s.
+    pub cycle_s: f64,
+}
+
+pub const GROUND: [f64; 3] = [0.0, 0.0, -1.0];
+
+impl Probe {
+    /// Builds the probe of a validated design.
+    pub fn from_design(d: &Design) -> Probe {
+        let segs = &d.sequence.segments;
+        let first = segs.iter().position(|s| matches!(s, Segment::Pulse { .. })).unwrap_or(0);
+        let last = segs.iter().rposition(|s| matches!(s, Segment::Pulse { .. })).unwrap_or(0);
+        let rounds = d.detection.rounds.max(1) as f64;
+        let mut start_s = 0.0;
+        for s in &segs[..first] {
+            start_s += match s {
+                Segment::Dead { label: crate::design::DeadLabel::Detection, duration_s } => duration_s * rounds,
+                s => s.duration_s(),
+            };
+        }
+        let steps = segs[first..=last]
+            .iter()
+            .map(|s| match *s {
+                Segment::Pulse { duration_s, area_pi, phase_deg, detuning_offset_hz } => Step {
+                    duration_s,
+                    omega: area_pi * PI / duration_s,
+                    phase: phase_deg.to_radians(),
+                    offset: 2.0 * PI * detuning_offset_hz,
+                },
+                Segment::Free { duration_s } | Segment::Dead { duration_s, .. } => Step { duration_s, omega: 0.0, phase: 0.0, offset: 0.0 },
+            })
+            .collect();
+        let gamma = d.transition.lifetime_s.map(|t| 1.0 / t).unwrap_or(0.0);
+        let detuning_factor = match d.atoms.entanglement {
+            Entanglement::Ghz => d.atoms.count as f64,
+            _ => 1.0,
+        };
+        Probe { steps, gamma, detuning_factor, start_s, cycle_s: d.cycle_time_s() }
+    }
+
+    /// Total probe duration, s.
+    pub fn duration_s(&self) -> f64 {
+        self.steps.iter().map(|s| s.duration_s).sum()
+    }
+
+    /// Generators of all steps at laser detuning `nu_hz` (Hz).
+    pub fn generators(&self, nu_hz: f64) -> Vec<Generator> {
+        let det = 2.0 * PI * nu_hz * self.detuning_factor;
+        self.steps.iter().map(|s| Generator::new(s, det, self.gamma)).collect()
+    }
+
+    /// Bloch vector at the end of the probe, laser detuning `nu_hz` (Hz).
+    pub fn final_state(&self, nu_hz: f64) -> [f64; 3] {
+        let det = 2.0 * PI * nu_hz * self.detuning_factor;
+        let mut r = GROUND;
+        for s in &self.steps {
+            r = Generator::new(s, det, self.gamma).propagator(s.duration_s).apply(r);
+        }
+        r
+    }
+
+    /// Excitation probability at the end of the probe, laser detuning `nu_hz` (Hz).
+    pub fn excitation(&self, nu_hz: f64) -> f64 {
+        ((self.final_state(nu_hz)[2] + 1.0) / 2.0).clamp(0.0, 1.0)
+    }
+
+    /// A frequency scale of the central feature, Hz: 1/(probe duration x detuning factor).
+    pub fn width_scale_hz(&self) -> f64 {
+        1.0 / (self.duration_s() * self.detuning_factor)
+    }
+}
+
+/// Ready-made probe sequences.
+#[derive(Debug, Clone, Copy, PartialEq, Serialize, Deserialize)]
+#[serde(tag = "kind", rename_all = "snake_case", deny_unknown_fields)]
+pub enum Preset {
+    /// One pi pulse of the given duration.
+    Rabi { probe_time_s: f64 },
+    /// pi/2 pulse, free evolution, pi/2 pulse.
+    Ramsey { pulse_s: f64, free_s: f64 },
+    /// A light-shift-robust variant (hyper-Ramsey type, Phys. Rev. A 82, 011804 (2010)):
+    /// pi/2 pulse, free evolution, a pi pulse of twice the duration with inverted phase,
+    /// and a final pi/2 pulse.
+    HyperRamsey { pulse_s: f64, free_s: f64 },
+}
+
+/// A preset with its identifier and title, for menus.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct PresetInfo {
+    pub id: String,
+    pub title: String,
+    pub preset: Preset,
+}
+
+impl Preset {
+    /// The probe segments of the preset (dead time is added by the design).
+    pub fn segments(&self) -> Vec<Segment> {
+        let pulse = |duration_s: f64, area_pi: f64, phase_deg: f64| Segment::Pulse { duration_s, area_pi, phase_deg, detuning_offset_hz: 0.0 };
+        match *self {
+            Preset::Rabi { probe_time_s } => vec![pulse(probe_time_s, 1.0, 0.0)],
+            Preset::Ramsey { pulse_s, free_s } => vec![pulse(pulse_s, 0.5, 0.0), Segment::Free { duration_s: free_s }, pulse(pulse_s, 0.5, 0.0)],
+            Preset::HyperRamsey { pulse_s, free_s } => vec![
+                pulse(pulse_s, 0.5, 0.0),
+                Segment::Free { duration_s: free_s },
+                pulse(2.0 * pulse_s, 1.0, 180.0),
+                pulse(pulse_s, 0.5, 0.0),
+            ],
+        }
+    }
+}
+
+/// The presets with typical parameters, for menus.
+pub fn presets() -> Vec<PresetInfo> {
+    vec![
+        PresetInfo { id: "rabi".into(), title: "Rabi (one pi pulse)".into(), preset: Preset::Rabi { probe_time_s: 0.1 } },
+        PresetInfo { id: "ramsey".into(), title: "Ramsey (pi/2 - free - pi/2)".into(), preset: Preset::Ramsey { pulse_s: 0.005, free_s: 0.2 } },
+        PresetInfo {
+            id: "hyper_ramsey".into(),
+            title: "Hyper-Ramsey (pi/2 - free - pi - pi/2)".into(),
+            preset: Preset::HyperRamsey { pulse_s: 0.005, free_s: 0.2 },
+        },
+    ]
+}
