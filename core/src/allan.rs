@@ -84,6 +84,14 @@ pub fn variance(s: &dyn Fn(f64) -> f64, tau: f64, which: Variance, features: &[f
     // Oscillating range: panels of pi/2, split at features.
     let mut edges: Vec<f64> = (0..=32).map(|k| k as f64 * PI / 2.0).collect();
     edges.extend(feats.iter().copied().filter(|&u| u < U_SWITCH));
+    // Below the first quarter period, geometric panels down to well under the lowest
+    // feature, so that a corner at small u is resolved.
+    let lowest = feats.first().copied().unwrap_or(PI / 2.0).min(PI / 2.0);
+    let mut u = PI / 4.0;
+    while u > lowest * 1e-3 && edges.len() < 200 {
+        edges.push(u);
+        u /= 2.0;
+    }
     edges.sort_by(|a, b| a.partial_cmp(b).unwrap_or(std::cmp::Ordering::Equal));
     for w in edges.windows(2) {
         let (a, b) = (w[0], w[1]);

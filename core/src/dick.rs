@@ -23,6 +23,8 @@ use std::f64::consts::PI;
 pub const MAX_HARMONICS: usize = 1 << 16;
 /// Relative truncation error at which the sum stops.
 pub const TOLERANCE: f64 = 1e-6;
+/// Relative rounding allowance of the Parseval integrals and the partial sums.
+const ROUNDING: f64 = 1e-13;
 /// Number of weights |g_m|^2/g_0^2 returned for display.
 pub const WEIGHTS_SHOWN: usize = 64;
 
@@ -66,6 +68,9 @@ struct Parseval {
     s0: f64,
     /// sum_{m>=1} |g_m|^2 / m^2
     s2: f64,
+    /// Rounding-error scales of s0 and s2 (both are differences of larger integrals).
+    e0: f64,
+    e2: f64,
 }
 
 fn parseval(gf: &SensitivityFunction) -> Parseval {
@@ -103,7 +108,14 @@ fn parseval(gf: &SensitivityFunction) -> Parseval {
         }
         h_start = b[..len].iter().sum();
     }
-    Parseval { g0: c0, s0: ((g2 - c0 * c0) / 2.0).max(0.0), s2: ((2.0 * PI * 2.0 * PI / 2.0) * (ih2 - ih * ih)).max(0.0) }
+    let k2 = 2.0 * PI * PI;
+    Parseval {
+        g0: c0,
+        s0: ((g2 - c0 * c0) / 2.0).max(0.0),
+        s2: (k2 * (ih2 - ih * ih)).max(0.0),
+        e0: ROUNDING * g2,
+        e2: ROUNDING * k2 * (ih2 + ih * ih),
+    }
 }
 
 #[inline]
@@ -184,8 +196,12 @@ pub fn fourier_coefficients(gf: &SensitivityFunction, m: usize) -> Vec<Complex64
 }
 
 /// Lower and upper bound and estimate of sum_{m>M} |g_m|^2 S_y(m/T_c).
-fn tail(spec: &Spectrum, tc: f64, m_done: usize, t0: f64, t2: f64) -> (f64, f64, f64) {
-    if t0 <= 0.0 {
+/// `t0` and `t2` are the tail sums with their rounding allowances `e0`, `e2`.
+fn tail(spec: &Spectrum, tc: f64, m_done: usize, (t0, e0): (f64, f64), (t2, e2): (f64, f64)) -> (f64, f64, f64) {
+    let (t0_lo, t0_hi) = ((t0 - e0).max(0.0), t0 + e0);
+    let (t2_lo, t2_hi) = ((t2 - e2).max(0.0), (t2 + e2).min(t0_hi));
+    let (t0, t2) = (t0.max(0.0), t2.clamp(0.0, t2_hi));
+    if t0_hi <= 0.0 {
         return (0.0, 0.0, 0.0);
     }
     let mf = m_done as f64;
@@ -193,12 +209,22 @@ fn tail(spec: &Spectrum, tc: f64, m_done: usize, t0: f64, t2: f64) -> (f64, f64,
     let (mut lo, mut hi) = (0.0, 0.0);
     for &(a, h) in &spec.terms {
         let k = h * libm::pow(tc, -a as f64);
-        if a <= 0 {
-            let af = a as f64;
-            hi += k * libm::pow(t0, 1.0 + af / 2.0) * libm::pow(t2.max(0.0), -af / 2.0);
-            lo += k * libm::pow(mf + 1.0, af + 2.0) * t2.max(0.0);
-        } else if mf < m_h {
-            hi += k * libm::pow(m_h, a as f64) * t0;
+        match a {
+            // The white and random-walk tails are the Parseval sums themselves.
+            0 => {
+                lo += k * t0_lo;
+                hi += k * t0_hi;
+            }
+            -2 => {
+                lo += k * t2_lo;
+                hi += k * t2_hi;
+            }
+            -1 => {
+                hi += k * libm::sqrt(t0_hi * t2_hi);
+                lo += k * (mf + 1.0) * t2_lo;
+            }
+            _ if mf < m_h => hi += k * libm::pow(m_h, a as f64) * t0_hi,
+            _ => {}
         }
     }
     if let Some(_t) = &spec.table {
@@ -214,7 +240,7 @@ fn tail(spec: &Spectrum, tc: f64, m_done: usize, t0: f64, t2: f64) -> (f64, f64,
                     smax = smax.max(table_only(spec, f));
                 }
             }
-            hi += smax * t0;
+            hi += smax * t0_hi;
         }
     }
     // Estimate: |g_m|^2 ~ K m^-q fitted to t0 and t2.
@@ -298,9 +324,9 @@ pub fn dick_sum(gf: &SensitivityFunction, spec: &Spectrum) -> DickSum {
         p2 += c2 / (m as f64 * m as f64);
         d += c2 * spec.s_y(m as f64 / tc);
         if m == checkpoint || m == MAX_HARMONICS {
-            let t0 = (pv.s0 - p0).max(0.0);
-            let t2 = (pv.s2 - p2).max(0.0);
-            let (lo, hi, est) = tail(spec, tc, m, t0, t2);
+            let e0 = pv.e0 + ROUNDING * p0;
+            let e2 = pv.e2 + ROUNDING * p2;
+            let (lo, hi, est) = tail(spec, tc, m, (pv.s0 - p0, e0), (pv.s2 - p2, e2));
             total = d + est;
             let half = (hi - est).max(est - lo).max(0.0);
             bound = if total > 0.0 { half / total } else { 0.0 };

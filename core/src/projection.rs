@@ -11,8 +11,11 @@ use crate::design::{Design, Entanglement, OperatingPointRule};
 use crate::error::InputError;
 use crate::sequence::Probe;
 
-/// Grid points on the central feature when searching the operating point.
+/// Grid points on the flank when searching the operating point.
 const SEARCH_POINTS: usize = 256;
+/// Fraction of the feature's height excluded at its top and bottom when searching the
+/// best slope-to-noise point.
+pub const FLANK_MARGIN: f64 = 0.05;
 
 /// Misassignment probability after a majority vote over `rounds` independent rounds
 /// with per-round error `e` (ties of an even count decided by a fair coin).
@@ -114,14 +117,30 @@ pub fn operating_point(probe: &Probe, ro: &Readout, rule: OperatingPointRule) ->
             "the sequence gives no usable line: the excitation hardly changes with detuning",
         ));
     }
-    // Best slope-to-noise on a grid over the feature, refined by golden section.
-    let mut best_k = 1;
+    // The flank: where the excitation lies more than FLANK_MARGIN of the feature's height
+    // away from its top and bottom. At the very top and bottom the slope vanishes; without
+    // detection errors the slope-to-noise ratio has a finite limit there, which no lock
+    // can use (common practice: lock on the flank).
+    let height = p0 - p_edge;
+    let level = |frac: f64| p_edge + frac * height;
+    let crossing = |target: f64| {
+        let (mut a, mut b) = (0.0, edge);
+        for _ in 0..60 {
+            let mid = (a + b) / 2.0;
+            if (probe.excitation(mid) - target) * height > 0.0 { a = mid } else { b = mid }
+        }
+        (a + b) / 2.0
+    };
+    let flank_lo = crossing(level(1.0 - FLANK_MARGIN));
+    let flank_hi = crossing(level(FLANK_MARGIN));
+    // Best slope-to-noise on a grid over the flank, refined by golden section.
+    let at = |k: usize| flank_lo + (flank_hi - flank_lo) * k as f64 / SEARCH_POINTS as f64;
+    let mut best_k = 0;
     let mut best_m = -1.0;
-    let mut merits = Vec::with_capacity(SEARCH_POINTS);
-    for k in 1..SEARCH_POINTS {
-        let nu = edge * k as f64 / SEARCH_POINTS as f64;
-        let m = merit(probe, ro, nu, step);
-        merits.push((nu, m));
+    let mut merits = Vec::with_capacity(SEARCH_POINTS + 1);
+    for k in 0..=SEARCH_POINTS {
+        let m = merit(probe, ro, at(k), step);
+        merits.push((at(k), m));
         if m > best_m {
             best_m = m;
             best_k = k;
@@ -131,15 +150,18 @@ pub fn operating_point(probe: &Probe, ro: &Readout, rule: OperatingPointRule) ->
     let half_level = (p0 + p_edge) / 2.0;
     let flat: Vec<&(f64, f64)> = merits.iter().filter(|(_, m)| *m >= best_m * (1.0 - 1e-6)).collect();
     let best_hz = if flat.len() > 2 {
-        flat.iter().min_by(|a, b| {
-            let da = (probe.excitation(a.0) - half_level).abs();
-            let db = (probe.excitation(b.0) - half_level).abs();
-            da.partial_cmp(&db).unwrap_or(std::cmp::Ordering::Equal)
-        }).map(|x| x.0).unwrap_or(edge / 2.0)
+        flat.iter()
+            .min_by(|a, b| {
+                let da = (probe.excitation(a.0) - half_level).abs();
+                let db = (probe.excitation(b.0) - half_level).abs();
+                da.partial_cmp(&db).unwrap_or(std::cmp::Ordering::Equal)
+            })
+            .map(|x| x.0)
+            .unwrap_or(edge / 2.0)
     } else {
-        let lo = edge * (best_k.saturating_sub(1)) as f64 / SEARCH_POINTS as f64;
-        let hi = edge * ((best_k + 1).min(SEARCH_POINTS)) as f64 / SEARCH_POINTS as f64;
-        golden_max(|nu| merit(probe, ro, nu, step), lo.max(step * 2.0), hi)
+        let lo = at(best_k.saturating_sub(1));
+        let hi = at((best_k + 1).min(SEARCH_POINTS));
+        golden_max(|nu| merit(probe, ro, nu, step), lo, hi)
     };
     // Half maximum by bisection on the monotone flank.
     let (mut a, mut b) = (0.0, edge);

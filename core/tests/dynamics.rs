@@ -1,0 +1,97 @@
+//! Two-level propagation and line shapes against closed forms and a slow RK4 twin.
+
+mod common;
+use clockwright_core::sequence::*;
+use common::*;
+use std::f64::consts::PI;
+
+/// Rabi line shape for a square pulse without decay (e.g. Riis and Sinclair, J. Phys. B 37,
+/// 4719 (2004), and any quantum-optics text): P = Omega^2/W^2 sin^2(W t/2), W^2 = Omega^2 + delta^2.
+#[test]
+fn rabi_line_shape_matches_closed_form() {
+    let t = 0.1;
+    let probe = Probe {
+        steps: vec![Step { duration_s: t, omega: PI / t, phase: 0.0, offset: 0.0 }],
+        gamma: 0.0,
+        detuning_factor: 1.0,
+        start_s: 0.0,
+        cycle_s: t,
+    };
+    for k in 0..200 {
+        let nu = -40.0 + 0.4 * k as f64;
+        let d = 2.0 * PI * nu;
+        let om = PI / t;
+        let w = (om * om + d * d).sqrt();
+        let closed = om * om / (w * w) * (w * t / 2.0).sin().powi(2);
+        assert!((probe.excitation(nu) - closed).abs() < 1e-13, "nu {nu}");
+    }
+}
+
+/// Ramsey fringes with short pulses: P = (1 + cos(2 pi nu T))/2 near line centre.
+#[test]
+fn ramsey_fringe_with_short_pulses() {
+    let (tp, tr) = (1e-7, 0.2);
+    let probe = Probe {
+        steps: vec![
+            Step { duration_s: tp, omega: PI / 2.0 / tp, phase: 0.0, offset: 0.0 },
+            Step { duration_s: tr, omega: 0.0, phase: 0.0, offset: 0.0 },
+            Step { duration_s: tp, omega: PI / 2.0 / tp, phase: 0.0, offset: 0.0 },
+        ],
+        gamma: 0.0,
+        detuning_factor: 1.0,
+        start_s: 0.0,
+        cycle_s: 1.0,
+    };
+    for k in 0..50 {
+        let nu = 0.1 * k as f64;
+        let closed = (1.0 + (2.0 * PI * nu * (tr + 4.0 * tp / PI)).cos()) / 2.0;
+        assert!((probe.excitation(nu) - closed).abs() < 1e-6, "nu {nu}");
+    }
+}
+
+/// The propagator with decay (matrix exponential) against a slow RK4 integration of the
+/// optical Bloch equations, on random segments.
+#[test]
+fn propagator_with_decay_matches_rk4() {
+    let mut rng = Rng(11);
+    for _ in 0..40 {
+        let t = rng.log_uniform(1e-3, 2.0);
+        let step = Step { duration_s: t, omega: rng.uniform(0.0, 20.0) / t, phase: rng.uniform(-PI, PI), offset: rng.uniform(-5.0, 5.0) / t };
+        let gamma = rng.log_uniform(1e-3, 3.0) / t;
+        let det = rng.uniform(-3.0, 3.0) / t;
+        let g = Generator::new(&step, det, gamma);
+        let r0 = [rng.uniform(-0.5, 0.5), rng.uniform(-0.5, 0.5), rng.uniform(-0.7, 0.7)];
+        let fast = g.propagator(t).apply(r0);
+        let slow = rk4_bloch(r0, g.axis, gamma, t, 20_000);
+        for i in 0..3 {
+            assert!((fast[i] - slow[i]).abs() < 1e-9, "component {i}: {fast:?} vs {slow:?}");
+        }
+    }
+}
+
+/// The closed-form rotation (no decay) and the general matrix exponential agree in the
+/// limit of vanishing decay.
+#[test]
+fn rotation_is_the_zero_decay_limit() {
+    let step = Step { duration_s: 0.3, omega: 7.0, phase: 0.4, offset: 2.0 };
+    let a = Generator::new(&step, 1.5, 0.0).propagator(0.3);
+    let b = Generator::new(&step, 1.5, 1e-12).propagator(0.3);
+    for i in 0..3 {
+        for j in 0..3 {
+            assert!((a.m[i][j] - b.m[i][j]).abs() < 1e-11);
+        }
+    }
+}
+
+/// A pi pulse much longer than the lifetime leaves the atom in the steady state of the
+/// driven, damped two-level system: w = -1/(1 + s) with s = 2 Omega^2/Gamma^2 on resonance
+/// (optical Bloch equations with pure radiative damping, any quantum-optics text).
+#[test]
+fn long_pulse_with_decay_reaches_steady_state() {
+    let gamma = 50.0;
+    let omega = 30.0;
+    let step = Step { duration_s: 10.0, omega, phase: 0.0, offset: 0.0 };
+    let r = Generator::new(&step, 0.0, gamma).propagator(10.0).apply(GROUND);
+    let s = 2.0 * omega * omega / (gamma * gamma);
+    assert!((r[2] - (-1.0 / (1.0 + s))).abs() < 1e-12, "{r:?}");
+}
