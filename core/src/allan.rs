@@ -7,7 +7,7 @@
 //!   (continuous-averaging limit of the modified Allan variance).
 //!
 //! With u = pi f tau the integrals become (2/(pi tau)) int S(u/(pi tau)) K(u) du. The
-//! oscillating range u < 16 pi is integrated on panels of a quarter period with 8-point
+//! oscillating range u < 8 pi is integrated on panels of a quarter period with 8-point
 //! Gauss-Legendre; beyond it the kernel is replaced by its mean (3/8 for sin^4, 5/16 for
 //! sin^6) on log-spaced panels, plus the leading boundary term of the oscillating part
 //! (integration by parts: int_U^inf F(u) cos(k u) du = -F'(U)/k^2 + O(F''') at U = n pi),
@@ -71,7 +71,9 @@ impl Variance {
 }
 
 /// Start of the averaged-kernel range, in u = pi f tau.
-const U_SWITCH: f64 = 16.0 * PI;
+const U_SWITCH: f64 = 8.0 * PI;
+/// Width of the log-spaced panels of the averaged range, in ln u.
+const LOG_PANEL: f64 = 1.0;
 
 /// The variance (not deviation) of spectrum `s` (S_y in 1/Hz as a function of f in Hz) at
 /// averaging time `tau`. `features` are frequencies (Hz) where `s` has kinks or steps.
@@ -82,15 +84,17 @@ pub fn variance(s: &dyn Fn(f64) -> f64, tau: f64, which: Variance, features: &[f
     feats.sort_by(|a, b| a.partial_cmp(b).unwrap_or(std::cmp::Ordering::Equal));
     let mut total = 0.0;
     // Oscillating range: panels of pi/2, split at features.
-    let mut edges: Vec<f64> = (0..=32).map(|k| k as f64 * PI / 2.0).collect();
+    let quarters = (U_SWITCH / (PI / 2.0)) as usize;
+    let mut edges: Vec<f64> = (0..=quarters).map(|k| k as f64 * PI / 2.0).collect();
     edges.extend(feats.iter().copied().filter(|&u| u < U_SWITCH));
-    // Below the first quarter period, geometric panels down to well under the lowest
-    // feature, so that a corner at small u is resolved.
-    let lowest = feats.first().copied().unwrap_or(PI / 2.0).min(PI / 2.0);
-    let mut u = PI / 4.0;
-    while u > lowest * 1e-3 && edges.len() < 200 {
-        edges.push(u);
-        u /= 2.0;
+    // Below the first quarter period, geometric panels (factor 4) down to well under the
+    // lowest feature, so that a corner at small u is resolved.
+    if let Some(&lowest) = feats.first().filter(|&&u| u < PI / 2.0) {
+        let mut u = PI / 8.0;
+        while u > lowest * 1e-3 && edges.len() < 200 {
+            edges.push(u);
+            u /= 4.0;
+        }
     }
     edges.sort_by(|a, b| a.partial_cmp(b).unwrap_or(std::cmp::Ordering::Equal));
     for w in edges.windows(2) {
@@ -108,10 +112,10 @@ pub fn variance(s: &dyn Fn(f64) -> f64, tau: f64, which: Variance, features: &[f
     let p = which.power();
     let mean = which.mean();
     let big = feats.last().copied().unwrap_or(0.0).max(U_SWITCH);
-    let u_end = big * 1e3;
+    let u_end = big * 1e2;
     let mut ledges: Vec<f64> = Vec::new();
     let (l0, l1) = (libm::log(U_SWITCH), libm::log(u_end));
-    let n = (libm::ceil((l1 - l0) / 0.35) as usize).clamp(1, 400);
+    let n = (libm::ceil((l1 - l0) / LOG_PANEL) as usize).clamp(1, 400);
     for k in 0..=n {
         ledges.push(l0 + (l1 - l0) * k as f64 / n as f64);
     }
@@ -173,4 +177,86 @@ pub fn allan_variance_lowpass_white(h0: f64, tau: f64, t_c: f64) -> f64 {
     let e1 = libm::exp(-x);
     let bracket = 1.0 - (3.0 - 4.0 * e1 + e1 * e1) / (2.0 * x);
     h0 / (2.0 * tau) * bracket
+}
+
+/// Universal shapes of servo-filtered noise, as functions of c = T/tau (T the servo time
+/// constant), tabulated once from [`variance`] on ln c in [SHAPE_LO, SHAPE_HI]:
+/// - flicker FM through the high-pass x^2/(1+x^2), x = 2 pi f T: Allan and modified
+///   variance per unit h_-1 (scale-free, so a function of c alone);
+/// - white FM through the low-pass 1/(1+x^2): modified variance times tau per unit h0.
+struct Shapes {
+    flicker_hp_allan: Vec<f64>,
+    flicker_hp_mod: Vec<f64>,
+    white_lp_mod: Vec<f64>,
+}
+
+const SHAPE_LO: f64 = -36.0;
+const SHAPE_HI: f64 = 32.0;
+const SHAPE_STEP: f64 = 0.25;
+
+fn shapes() -> &'static Shapes {
+    static SHAPES: std::sync::OnceLock<Shapes> = std::sync::OnceLock::new();
+    SHAPES.get_or_init(|| {
+        let n = ((SHAPE_HI - SHAPE_LO) / SHAPE_STEP) as usize + 1;
+        let mut s = Shapes { flicker_hp_allan: Vec::with_capacity(n), flicker_hp_mod: Vec::with_capacity(n), white_lp_mod: Vec::with_capacity(n) };
+        for k in 0..n {
+            let c = libm::exp(SHAPE_LO + SHAPE_STEP * k as f64);
+            let corner = 1.0 / (2.0 * PI * c);
+            let hp = move |f: f64| {
+                let x = 2.0 * PI * f * c;
+                let x2 = x * x;
+                x2 / (1.0 + x2)
+            };
+            let flicker = move |f: f64| hp(f) / f;
+            let white_lp = move |f: f64| {
+                let x = 2.0 * PI * f * c;
+                1.0 / (1.0 + x * x)
+            };
+            s.flicker_hp_allan.push(libm::log(variance(&flicker, 1.0, Variance::Allan, &[corner])));
+            s.flicker_hp_mod.push(libm::log(variance(&flicker, 1.0, Variance::Modified, &[corner])));
+            s.white_lp_mod.push(libm::log(variance(&white_lp, 1.0, Variance::Modified, &[corner])));
+        }
+        s
+    })
+}
+
+/// Six-point Lagrange interpolation of a table of ln values on the ln c grid, linear
+/// extrapolation of the end slope outside it.
+fn shape_at(table: &[f64], c: f64) -> f64 {
+    let l = libm::log(c);
+    let x = (l - SHAPE_LO) / SHAPE_STEP;
+    let n = table.len();
+    if x <= 0.0 {
+        return libm::exp(table[0] + (table[1] - table[0]) * x);
+    }
+    if x >= (n - 1) as f64 {
+        return libm::exp(table[n - 1] + (table[n - 1] - table[n - 2]) * (x - (n - 1) as f64));
+    }
+    let first = (libm::floor(x) as usize).saturating_sub(2).min(n - 6);
+    let mut v = 0.0;
+    for i in first..first + 6 {
+        let mut w = 1.0;
+        for j in first..first + 6 {
+            if j != i {
+                w *= (x - j as f64) / (i as f64 - j as f64);
+            }
+        }
+        v += w * table[i];
+    }
+    libm::exp(v)
+}
+
+/// Allan variance of flicker FM h_-1/f through the servo high-pass of time constant `t_c`.
+pub fn allan_variance_flicker_highpass(h: f64, tau: f64, t_c: f64) -> f64 {
+    h * shape_at(&shapes().flicker_hp_allan, t_c / tau)
+}
+
+/// Modified Allan variance of flicker FM h_-1/f through the servo high-pass.
+pub fn mod_variance_flicker_highpass(h: f64, tau: f64, t_c: f64) -> f64 {
+    h * shape_at(&shapes().flicker_hp_mod, t_c / tau)
+}
+
+/// Modified Allan variance of white FM h0 through the servo low-pass 1/(1 + (2 pi f T)^2).
+pub fn mod_variance_lowpass_white(h0: f64, tau: f64, t_c: f64) -> f64 {
+    h0 / tau * shape_at(&shapes().white_lp_mod, t_c / tau)
 }

@@ -8,7 +8,7 @@
 //! independent, so their variances add. A linear drift D of the free laser leaves a
 //! constant lag D T_s behind a first-order integrator and no Allan variance.
 
-use crate::allan::{allan_variance_lowpass_white, allan_variance_power_law, variance, Variance};
+use crate::allan::*;
 use crate::design::Design;
 use crate::dick::dick_sum;
 use crate::error::{Checker, InputError};
@@ -62,7 +62,29 @@ impl Model {
         let x2 = x * x;
         x2 / (1.0 + x2)
     }
+    /// Whether the laser is made of frequency-noise power laws only (alpha <= 0, no table),
+    /// for which the filtered variances have closed or tabulated universal forms.
+    fn frequency_power_laws_only(&self) -> bool {
+        self.spec.table.is_none() && self.spec.terms.iter().all(|&(a, _)| (-2..=0).contains(&a))
+    }
+    /// Laser noise left by the servo: |1 - H|^2 S_laser. For frequency-noise power laws:
+    /// white FM h0 x^2/(1+x^2) = h0 - h0/(1+x^2); random walk h/f^2 x^2/(1+x^2) =
+    /// h (2 pi T)^2/(1+x^2); flicker from the tabulated universal shape. Otherwise the
+    /// transfer-function integral.
     fn laser_var(&self, tau: f64) -> f64 {
+        let t = self.attack_s;
+        if self.frequency_power_laws_only() {
+            return self
+                .spec
+                .terms
+                .iter()
+                .map(|&(a, h)| match a {
+                    0 => (h / (2.0 * tau) - allan_variance_lowpass_white(h, tau, t)).max(0.0),
+                    -1 => allan_variance_flicker_highpass(h, tau, t),
+                    _ => allan_variance_lowpass_white(h * (2.0 * PI * t) * (2.0 * PI * t), tau, t),
+                })
+                .sum();
+        }
         variance(&|f| self.spec.s_y(f) * self.highpass(f), tau, Variance::Allan, &self.features)
     }
     fn projection_var(&self, tau: f64) -> f64 {
@@ -79,9 +101,28 @@ impl Model {
     }
     fn mod_total(&self, tau: f64) -> f64 {
         let h0 = self.h0_projection + self.h0_dick;
+        let t = self.attack_s;
+        if self.frequency_power_laws_only() {
+            let laser: f64 = self
+                .spec
+                .terms
+                .iter()
+                .map(|&(a, h)| match a {
+                    0 => (h / (4.0 * tau) - mod_variance_lowpass_white(h, tau, t)).max(0.0),
+                    -1 => mod_variance_flicker_highpass(h, tau, t),
+                    _ => mod_variance_lowpass_white(h * (2.0 * PI * t) * (2.0 * PI * t), tau, t),
+                })
+                .sum();
+            return libm::sqrt(laser + mod_variance_lowpass_white(h0, tau, t));
+        }
+        self.mod_total_numeric(tau)
+    }
+    fn mod_total_numeric(&self, tau: f64) -> f64 {
+        let h0 = self.h0_projection + self.h0_dick;
         let s = |f: f64| {
-            let hp = self.highpass(f);
-            self.spec.s_y(f) * hp + h0 * (1.0 - hp)
+            let x = 2.0 * PI * f * self.attack_s;
+            let lp = 1.0 / (1.0 + x * x);
+            self.spec.s_y(f) * self.highpass(f) + h0 * lp
         };
         libm::sqrt(variance(&s, tau, Variance::Modified, &self.features))
     }
@@ -292,10 +333,22 @@ fn time_to_target(model: &Model, curve: &Curve, target: f64, sigma_1s_eq: f64) -
             }
         }
         Some(i) => {
+            // Secant steps on log sigma against log tau between the grid points.
+            let f = |lt: f64| libm::log(model.total(libm::exp(lt)) / target);
             let (mut a, mut b) = (libm::log(curve.tau_s[i]), libm::log(curve.tau_s[i + 1]));
-            for _ in 0..50 {
-                let m = (a + b) / 2.0;
-                if model.total(libm::exp(m)) > target { a = m } else { b = m }
+            let (mut fa, mut fb) = (libm::log(curve.total[i] / target), libm::log(curve.total[i + 1] / target));
+            for _ in 0..30 {
+                let c = if fa != fb { (a * fb - b * fa) / (fb - fa) } else { (a + b) / 2.0 };
+                let c = c.clamp(a.min(b), a.max(b));
+                let fc = f(c);
+                if fc.abs() < 1e-12 {
+                    b = c;
+                    break;
+                }
+                if fc > 0.0 { a = c; fa = fc } else { b = c; fb = fc }
+                if (b - a).abs() < 1e-10 {
+                    break;
+                }
             }
             TargetResult { target, time_s: Some(libm::exp(b)), note: "found on the computed curve".into() }
         }

@@ -11,8 +11,12 @@ use crate::design::{Design, Entanglement, OperatingPointRule};
 use crate::error::InputError;
 use crate::sequence::Probe;
 
-/// Grid points on the flank when searching the operating point.
-const SEARCH_POINTS: usize = 256;
+/// Grid intervals on the flank when searching the operating point.
+const SEARCH_POINTS: usize = 48;
+/// Steps of the outward walk that finds the edge of the central feature, over
+/// EDGE_SPAN / (probe duration) Hz.
+const EDGE_STEPS: usize = 64;
+const EDGE_SPAN: f64 = 4.0;
 /// Fraction of the feature's height excluded at its top and bottom when searching the
 /// best slope-to-noise point.
 pub const FLANK_MARGIN: f64 = 0.05;
@@ -87,25 +91,94 @@ fn merit(probe: &Probe, ro: &Readout, nu: f64, step: f64) -> f64 {
     slope(probe, ro, nu, step).abs() / libm::sqrt(var)
 }
 
+/// Root of `f` in [a, b] where f changes sign, by the Illinois variant of regula falsi.
+fn solve(f: impl Fn(f64) -> f64, mut a: f64, mut b: f64) -> f64 {
+    let (mut fa, mut fb) = (f(a), f(b));
+    if fa == 0.0 {
+        return a;
+    }
+    if fb == 0.0 || fa * fb > 0.0 {
+        return b;
+    }
+    let tol = 1e-13 * (a.abs() + b.abs());
+    let mut side = 0;
+    for _ in 0..100 {
+        let c = (a * fb - b * fa) / (fb - fa);
+        let fc = f(c);
+        if fc * fb > 0.0 {
+            b = c;
+            fb = fc;
+            if side == -1 {
+                fa /= 2.0;
+            }
+            side = -1;
+        } else if fc * fa > 0.0 {
+            a = c;
+            fa = fc;
+            if side == 1 {
+                fb /= 2.0;
+            }
+            side = 1;
+        } else {
+            return c;
+        }
+        if (b - a).abs() < tol {
+            break;
+        }
+    }
+    (a + b) / 2.0
+}
+
+/// Extremum of `f` in [a, b] by golden section; `sign` +1 for a maximum, -1 for a minimum.
+fn golden(f: impl Fn(f64) -> f64, mut a: f64, mut b: f64, sign: f64, iterations: usize) -> f64 {
+    let r = 0.618_033_988_749_894_8;
+    let mut c = b - r * (b - a);
+    let mut d = a + r * (b - a);
+    let (mut fc, mut fd) = (sign * f(c), sign * f(d));
+    for _ in 0..iterations {
+        if fc > fd {
+            b = d;
+            d = c;
+            fd = fc;
+            c = b - r * (b - a);
+            fc = sign * f(c);
+        } else {
+            a = c;
+            c = d;
+            fc = fd;
+            d = a + r * (b - a);
+            fd = sign * f(d);
+        }
+    }
+    (a + b) / 2.0
+}
+
 /// Finds the central feature, its best slope-to-noise and half-maximum points, and the
 /// operating point the design asks for.
 pub fn operating_point(probe: &Probe, ro: &Readout, rule: OperatingPointRule) -> Result<Operating, InputError> {
     let w = probe.width_scale_hz();
     let step = w * 1e-5;
     let p0 = probe.excitation(0.0);
-    // Edge of the central feature: walk outwards until the excitation turns.
-    let span = 4.0 * w;
-    let n = 4 * SEARCH_POINTS;
+    // Edge of the central feature: walk outwards until the excitation turns, then locate
+    // the turning point by golden section.
+    let h = EDGE_SPAN / EDGE_STEPS as f64 * w;
     let mut prev = p0;
-    let rising = probe.excitation(span / n as f64) > p0;
-    let mut edge = span;
-    for k in 1..=n {
-        let nu = span * k as f64 / n as f64;
+    let mut rising = None;
+    let mut edge = EDGE_SPAN * w;
+    for k in 1..=EDGE_STEPS {
+        let nu = h * k as f64;
         let p = probe.excitation(nu);
-        let turned = if rising { p < prev } else { p > prev };
-        if turned {
-            edge = span * (k - 1) as f64 / n as f64;
-            break;
+        if p != prev {
+            let up = p > prev;
+            match rising {
+                None => rising = Some(up),
+                Some(r) if r != up => {
+                    let sign = if r { 1.0 } else { -1.0 };
+                    edge = golden(|x| probe.excitation(x), (nu - 2.0 * h).max(0.0), nu, sign, 40);
+                    break;
+                }
+                _ => {}
+            }
         }
         prev = p;
     }
@@ -122,55 +195,37 @@ pub fn operating_point(probe: &Probe, ro: &Readout, rule: OperatingPointRule) ->
     // detection errors the slope-to-noise ratio has a finite limit there, which no lock
     // can use (common practice: lock on the flank).
     let height = p0 - p_edge;
-    let level = |frac: f64| p_edge + frac * height;
-    let crossing = |target: f64| {
-        let (mut a, mut b) = (0.0, edge);
-        for _ in 0..60 {
-            let mid = (a + b) / 2.0;
-            if (probe.excitation(mid) - target) * height > 0.0 { a = mid } else { b = mid }
-        }
-        (a + b) / 2.0
-    };
-    let flank_lo = crossing(level(1.0 - FLANK_MARGIN));
-    let flank_hi = crossing(level(FLANK_MARGIN));
-    // Best slope-to-noise on a grid over the flank, refined by golden section.
+    let crossing = |frac: f64| solve(|nu| probe.excitation(nu) - (p_edge + frac * height), 0.0, edge);
+    let flank_lo = crossing(1.0 - FLANK_MARGIN);
+    let flank_hi = crossing(FLANK_MARGIN);
+    // Best slope-to-noise on a grid over the flank, refined by a parabola through the
+    // best grid point and its neighbours.
     let at = |k: usize| flank_lo + (flank_hi - flank_lo) * k as f64 / SEARCH_POINTS as f64;
+    let merits: Vec<f64> = (0..=SEARCH_POINTS).map(|k| merit(probe, ro, at(k), step)).collect();
     let mut best_k = 0;
-    let mut best_m = -1.0;
-    let mut merits = Vec::with_capacity(SEARCH_POINTS + 1);
-    for k in 0..=SEARCH_POINTS {
-        let m = merit(probe, ro, at(k), step);
-        merits.push((at(k), m));
-        if m > best_m {
-            best_m = m;
+    for k in 1..=SEARCH_POINTS {
+        if merits[k] > merits[best_k] {
             best_k = k;
         }
     }
+    let best_m = merits[best_k];
     // Where the merit is flat to 1e-6 (ideal Ramsey), prefer the point nearest half height.
     let half_level = (p0 + p_edge) / 2.0;
-    let flat: Vec<&(f64, f64)> = merits.iter().filter(|(_, m)| *m >= best_m * (1.0 - 1e-6)).collect();
-    let best_hz = if flat.len() > 2 {
-        flat.iter()
-            .min_by(|a, b| {
-                let da = (probe.excitation(a.0) - half_level).abs();
-                let db = (probe.excitation(b.0) - half_level).abs();
-                da.partial_cmp(&db).unwrap_or(std::cmp::Ordering::Equal)
-            })
-            .map(|x| x.0)
-            .unwrap_or(edge / 2.0)
+    let half_max_hz = solve(|nu| probe.excitation(nu) - half_level, 0.0, edge);
+    let flat = merits.iter().filter(|&&m| m >= best_m * (1.0 - 1e-6)).count();
+    let best_hz = if flat > 2 {
+        let lo = (0..=SEARCH_POINTS).find(|&k| merits[k] >= best_m * (1.0 - 1e-6)).map(at).unwrap_or(flank_lo);
+        let hi = (0..=SEARCH_POINTS).rev().find(|&k| merits[k] >= best_m * (1.0 - 1e-6)).map(at).unwrap_or(flank_hi);
+        half_max_hz.clamp(lo, hi)
+    } else if best_k == 0 || best_k == SEARCH_POINTS {
+        at(best_k)
     } else {
-        let lo = at(best_k.saturating_sub(1));
-        let hi = at((best_k + 1).min(SEARCH_POINTS));
-        golden_max(|nu| merit(probe, ro, nu, step), lo, hi)
+        let (m0, m1, m2) = (merits[best_k - 1], merits[best_k], merits[best_k + 1]);
+        let denom = m0 - 2.0 * m1 + m2;
+        let shift = if denom < 0.0 { 0.5 * (m0 - m2) / denom } else { 0.0 };
+        let nu = at(best_k) + shift.clamp(-1.0, 1.0) * (flank_hi - flank_lo) / SEARCH_POINTS as f64;
+        if merit(probe, ro, nu, step) >= m1 { nu } else { at(best_k) }
     };
-    // Half maximum by bisection on the monotone flank.
-    let (mut a, mut b) = (0.0, edge);
-    for _ in 0..60 {
-        let mid = (a + b) / 2.0;
-        let above = (probe.excitation(mid) - half_level) * (p0 - half_level) > 0.0;
-        if above { a = mid } else { b = mid }
-    }
-    let half_max_hz = (a + b) / 2.0;
     let nu = match rule {
         OperatingPointRule::BestSlopeToNoise => best_hz,
         OperatingPointRule::HalfMaximum => half_max_hz,
@@ -181,32 +236,6 @@ pub fn operating_point(probe: &Probe, ro: &Readout, rule: OperatingPointRule) ->
         return Err(InputError::single("lock.operating_point", format!("{nu:.3e} Hz"), "the line has no slope at the operating point"));
     }
     Ok(Operating { detuning_hz: nu, excitation: p, measured: ro.measured(p), slope: s, best_hz, half_max_hz, peak: p0.max(p_edge), edge_hz: edge })
-}
-
-fn golden_max(f: impl Fn(f64) -> f64, mut a: f64, mut b: f64) -> f64 {
-    let r = 0.618_033_988_749_894_8;
-    let mut c = b - r * (b - a);
-    let mut d = a + r * (b - a);
-    let (mut fc, mut fd) = (f(c), f(d));
-    for _ in 0..60 {
-        if fc > fd {
-            b = d;
-            d = c;
-            fd = fc;
-            c = b - r * (b - a);
-            fc = f(c);
-        } else {
-            a = c;
-            c = d;
-            fc = fd;
-            d = a + r * (b - a);
-            fd = f(d);
-        }
-        if (b - a).abs() < 1e-10 * b.abs().max(1e-300) {
-            break;
-        }
-    }
-    (a + b) / 2.0
 }
 
 /// Projection-noise numbers of a design at an operating point.

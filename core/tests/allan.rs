@@ -102,3 +102,25 @@ fn lowpass_white_closed_form_matches_integration() {
         }
     }
 }
+
+/// The tabulated universal shapes of servo-filtered noise against the transfer-function
+/// integral itself (their slow twin), on random averaging and servo times.
+#[test]
+fn filtered_shapes_match_integration() {
+    let mut rng = common::Rng(41);
+    for _ in 0..60 {
+        let tau = rng.log_uniform(1e-5, 1e8);
+        let t_s = rng.log_uniform(1e-5, 1e6);
+        let corner = [1.0 / (2.0 * PI * t_s)];
+        let hp = move |f: f64| {
+            let x = (2.0 * PI * f * t_s).powi(2);
+            x / (1.0 + x)
+        };
+        let a = variance(&|f| hp(f) / f, tau, Variance::Allan, &corner);
+        let m = variance(&|f| hp(f) / f, tau, Variance::Modified, &corner);
+        let w = variance(&|f| 1.0 / (1.0 + (2.0 * PI * f * t_s).powi(2)), tau, Variance::Modified, &corner);
+        assert!(rel(allan_variance_flicker_highpass(1.0, tau, t_s), a) < 2e-5, "tau {tau} T {t_s}: {} vs {a}", allan_variance_flicker_highpass(1.0, tau, t_s));
+        assert!(rel(mod_variance_flicker_highpass(1.0, tau, t_s), m) < 2e-5, "tau {tau} T {t_s}");
+        assert!(rel(mod_variance_lowpass_white(1.0, tau, t_s), w) < 2e-5, "tau {tau} T {t_s}");
+    }
+}

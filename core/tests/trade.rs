@@ -1,7 +1,6 @@
 //! Facts of the trade, as sanity checks of whole budgets (common practice, no single source).
 
 mod common;
-use clockwright_core::design::*;
 use clockwright_core::noise::NoiseTerm;
 use clockwright_core::{demo, evaluate, EvalOptions};
 use common::*;
