@@ -50,10 +50,16 @@ fn moments(theta: f64, e: Complex64, nmax: usize, out: &mut [Complex64]) {
             out[n] = (out[n - 1] * n as f64 - e) / i_theta;
         }
     } else {
-        let big = nmax + 40;
+        // Start far enough above nmax that the start's error is damped below 1e-17.
+        let mut big = nmax;
+        let mut damp = 1.0;
+        while damp > 1e-17 && big < nmax + 60 {
+            big += 1;
+            damp *= theta.abs() / big as f64;
+        }
         let mut mu = e / Complex64::new(big as f64 + 1.0, -theta);
         for n in (1..=big).rev() {
-            mu = (i_theta * mu + e) / n as f64;
+            mu = (i_theta * mu + e) * (1.0 / n as f64);
             if n - 1 <= nmax {
                 out[n - 1] = mu;
             }

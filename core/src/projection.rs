@@ -12,7 +12,7 @@ use crate::error::InputError;
 use crate::sequence::Probe;
 
 /// Grid intervals on the flank when searching the operating point.
-const SEARCH_POINTS: usize = 48;
+const SEARCH_POINTS: usize = 32;
 /// Steps of the outward walk that finds the edge of the central feature, over
 /// EDGE_SPAN / (probe duration) Hz.
 const EDGE_STEPS: usize = 64;
@@ -174,7 +174,7 @@ pub fn operating_point(probe: &Probe, ro: &Readout, rule: OperatingPointRule) ->
                 None => rising = Some(up),
                 Some(r) if r != up => {
                     let sign = if r { 1.0 } else { -1.0 };
-                    edge = golden(|x| probe.excitation(x), (nu - 2.0 * h).max(0.0), nu, sign, 40);
+                    edge = golden(|x| probe.excitation(x), (nu - 2.0 * h).max(0.0), nu, sign, 30);
                     break;
                 }
                 _ => {}

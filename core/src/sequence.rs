@@ -85,6 +85,8 @@ impl Generator {
     pub fn propagator(&self, t: f64) -> Affine {
         if self.gamma == 0.0 {
             rotation(self.axis, t)
+        } else if self.axis[0] == 0.0 && self.axis[1] == 0.0 {
+            free_with_decay(self.axis[2], self.gamma, t)
         } else {
             expm_affine(&self.a, self.gamma, t)
         }
@@ -110,6 +112,15 @@ fn rotation(axis: [f64; 3], t: f64) -> Affine {
         }
     }
     Affine { m, c: [0.0; 3] }
+}
+
+/// Free evolution with decay, exactly: (u, v) turn about z at rate `wz` and shrink by
+/// exp(-gamma t / 2); w relaxes to -1 as exp(-gamma t).
+fn free_with_decay(wz: f64, gamma: f64, t: f64) -> Affine {
+    let (s, c) = (libm::sin(wz * t), libm::cos(wz * t));
+    let d = libm::exp(-gamma * t / 2.0);
+    let d2 = d * d;
+    Affine { m: [[d * c, -d * s, 0.0], [d * s, d * c, 0.0], [0.0, 0.0, d2]], c: [0.0, 0.0, d2 - 1.0] }
 }
 
 type M3 = [[f64; 3]; 3];
