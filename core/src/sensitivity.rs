@@ -170,15 +170,46 @@ impl SensitivityFunction {
         self.integral() / self.cycle_s
     }
 
-    /// Largest |g| over the cycle, from the pieces' sample points.
+    /// Largest |g| over the cycle: nine samples per piece, then golden-section refinement
+    /// around the best sample of each piece that comes within 1% of the largest sample.
     pub fn max_abs(&self) -> f64 {
-        let mut m: f64 = 0.0;
-        for p in &self.pieces {
-            for j in 0..=8 {
-                m = m.max(p.eval(j as f64 / 8.0).abs());
+        let mut per_piece: Vec<(f64, usize, usize)> = Vec::new();
+        for (i, p) in self.pieces.iter().enumerate() {
+            let (v, j) = (0..=8).map(|j| (p.eval(j as f64 / 8.0).abs(), j)).fold((0.0, 0), |a, b| if b.0 > a.0 { b } else { a });
+            if v > 0.0 {
+                per_piece.push((v, i, j));
             }
         }
-        m
+        let best = per_piece.iter().map(|x| x.0).fold(0.0, f64::max);
+        per_piece.retain(|x| x.0 >= 0.99 * best);
+        per_piece.sort_by(|a, b| b.0.partial_cmp(&a.0).unwrap_or(std::cmp::Ordering::Equal));
+        per_piece.truncate(32);
+        let mut out = best;
+        for &(_, i, j) in &per_piece {
+            let p = &self.pieces[i];
+            let f = |s: f64| p.eval(s).abs();
+            let (mut a, mut b) = (((j as f64 - 1.0) / 8.0).max(0.0), ((j as f64 + 1.0) / 8.0).min(1.0));
+            let r = 0.618_033_988_749_894_8;
+            let (mut c, mut d) = (b - r * (b - a), a + r * (b - a));
+            let (mut fc, mut fd) = (f(c), f(d));
+            for _ in 0..60 {
+                if fc > fd {
+                    b = d;
+                    d = c;
+                    fd = fc;
+                    c = b - r * (b - a);
+                    fc = f(c);
+                } else {
+                    a = c;
+                    c = d;
+                    fc = fd;
+                    d = a + r * (b - a);
+                    fd = f(d);
+                }
+            }
+            out = out.max(f((a + b) / 2.0));
+        }
+        out
     }
 }
 
