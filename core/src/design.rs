@@ -251,9 +251,10 @@ impl Design {
                 ))
             }
         }
-        serde_json::from_value(value).map_err(|e| {
-            let msg = e.to_string();
-            InputError::single("(document)", "", format!("does not follow the design schema: {msg}"))
+        serde_path_to_error::deserialize(value).map_err(|e| {
+            let path = e.path().to_string();
+            let path = if path == "." { "(document)".to_string() } else { path };
+            InputError::single(path, "", format!("does not follow the design schema: {}", e.inner()))
         })
     }
 

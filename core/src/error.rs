@@ -58,6 +58,8 @@ pub fn show(x: f64) -> String {
         "NaN".into()
     } else if x.is_infinite() {
         if x > 0.0 { "infinity".into() } else { "-infinity".into() }
+    } else if x != 0.0 && (x.abs() < 1e-3 || x.abs() >= 1e5) {
+        format!("{x:e}")
     } else {
         format!("{x}")
     }

@@ -297,6 +297,22 @@ pub struct PresetInfo {
 }
 
 impl Preset {
+    /// Checks the preset's durations (same limits as segments), naming `preset.<field>`.
+    pub fn validate(&self) -> Result<(), crate::error::InputError> {
+        use crate::design::caps::{MAX_DURATION_S, MIN_DURATION_S};
+        let mut c = crate::error::Checker::new();
+        match *self {
+            Preset::Rabi { probe_time_s } => {
+                c.range("preset.probe_time_s", probe_time_s, MIN_DURATION_S, MAX_DURATION_S, "s");
+            }
+            Preset::Ramsey { pulse_s, free_s } | Preset::HyperRamsey { pulse_s, free_s } => {
+                c.range("preset.pulse_s", pulse_s, MIN_DURATION_S, MAX_DURATION_S / 2.0, "s");
+                c.range("preset.free_s", free_s, MIN_DURATION_S, MAX_DURATION_S, "s");
+            }
+        }
+        c.finish()
+    }
+
     /// The probe segments of the preset (dead time is added by the design).
     pub fn segments(&self) -> Vec<Segment> {
         let pulse = |duration_s: f64, area_pi: f64, phase_deg: f64| Segment::Pulse { duration_s, area_pi, phase_deg, detuning_offset_hz: 0.0 };

@@ -187,3 +187,25 @@ proptest! {
         prop_assert_eq!(back, d);
     }
 }
+
+#[test]
+fn structural_errors_name_their_path() {
+    let mut v: serde_json::Value = serde_json::from_str(demo::FILES[0].1).unwrap();
+    v["atoms"]["count"] = serde_json::json!(2.5);
+    let e = Design::from_value(v.clone()).unwrap_err();
+    assert_eq!(e.problems[0].path, "atoms.count", "{e}");
+    v["atoms"]["count"] = serde_json::json!(1);
+    v["sequence"]["segments"][2]["duration_s"] = serde_json::json!("long");
+    // Inside a tagged segment the path stops at the segment (serde buffers tagged content).
+    let e = Design::from_value(v).unwrap_err();
+    assert!(e.problems[0].path.starts_with("sequence.segments[2]"), "{e}");
+}
+
+#[test]
+fn presets_are_checked() {
+    use clockwright_core::sequence::Preset;
+    let e = Preset::Ramsey { pulse_s: -1.0, free_s: 0.0 }.validate().unwrap_err();
+    let paths: Vec<_> = e.problems.iter().map(|p| p.path.as_str()).collect();
+    assert_eq!(paths, ["preset.pulse_s", "preset.free_s"]);
+    assert!(Preset::Rabi { probe_time_s: 0.1 }.validate().is_ok());
+}

@@ -1,0 +1,63 @@
+// The engine: the WebAssembly binding, loaded from the base64 data block inlined in the page.
+
+import init, * as cw from "../dist/pkg/clockwright_wasm.js";
+import type { Problem } from "../dist/pkg/clockwright_wasm.js";
+
+export type {
+  Design,
+  Evaluation,
+  EvalOptions,
+  Problem,
+  Segment,
+  NoiseTerm,
+  Preset,
+  PresetInfo,
+  SpectrumTable,
+  SpectrumUnit,
+  DeadLabel,
+  Entanglement,
+  Mechanism,
+} from "../dist/pkg/clockwright_wasm.js";
+
+/**
+ * Reads the engine module from the data block with id `cw-wasm` (zlib-compressed, base64),
+ * inflates it with the browser's DecompressionStream and instantiates it. Nothing is fetched.
+ */
+export async function loadEngine(doc: Document): Promise<void> {
+  const block = doc.getElementById("cw-wasm");
+  const text = block?.textContent?.trim() ?? "";
+  if (text === "") throw new Error("the page holds no engine module (the cw-wasm block is empty)");
+  if (typeof DecompressionStream === "undefined") {
+    throw new Error("this browser lacks DecompressionStream; use a current Chromium, Firefox or Safari");
+  }
+  const raw = atob(text);
+  const packed = new Uint8Array(raw.length);
+  for (let i = 0; i < raw.length; i++) packed[i] = raw.charCodeAt(i);
+  const stream = new Blob([packed]).stream().pipeThrough(new DecompressionStream("deflate"));
+  const bytes = await new Response(stream).arrayBuffer();
+  await init({ module_or_path: bytes });
+}
+
+export const engine = {
+  evaluate: cw.evaluate,
+  validate: cw.validate,
+  demoDesigns: cw.demoDesigns,
+  presets: cw.presets,
+  presetSegments: cw.presetSegments,
+  parseSpectrumCsv: cw.parseSpectrumCsv,
+  schemaVersion: cw.schemaVersion,
+};
+
+/** The problems carried by an error thrown by the engine (or one describing any other error). */
+export function problemsOf(err: unknown): Problem[] {
+  if (err && typeof err === "object" && Array.isArray((err as { problems?: unknown }).problems)) {
+    return (err as { problems: Problem[] }).problems;
+  }
+  const message = err instanceof Error ? err.message : String(err);
+  return [{ path: "(engine)", value: "", allowed: message }];
+}
+
+/** A problem as one line of text: "path: value; allowed". */
+export function problemText(p: Problem): string {
+  return p.value === "" ? `${p.path}: ${p.allowed}` : `${p.path}: ${p.value}; ${p.allowed}`;
+}
