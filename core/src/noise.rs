@@ -272,8 +272,14 @@ impl LogTable {
             let k = self.ln_f.partition_point(|&v| v <= x);
             (k - 1, k)
         };
-        let t = (x - self.ln_f[i]) / (self.ln_f[j] - self.ln_f[i]);
-        libm::exp(self.ln_s[i] + t * (self.ln_s[j] - self.ln_s[i]))
+        let mut slope = (self.ln_s[j] - self.ln_s[i]) / (self.ln_f[j] - self.ln_f[i]);
+        if x < self.ln_f[0] {
+            // Below the table, the end rows' power law, no steeper than random walk (f^-2):
+            // anything steeper would make the Allan variance diverge.
+            slope = slope.max(-2.0);
+            return libm::exp(self.ln_s[0] + slope * (x - self.ln_f[0]));
+        }
+        libm::exp(self.ln_s[i] + slope * (x - self.ln_f[i]))
     }
 }
 

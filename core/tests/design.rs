@@ -209,3 +209,13 @@ fn presets_are_checked() {
     assert_eq!(paths, ["preset.pulse_s", "preset.free_s"]);
     assert!(Preset::Rabi { probe_time_s: 0.1 }.validate().is_ok());
 }
+
+/// Below its first row a table extrapolates its end power law, but never steeper than
+/// f^-2 (random walk), so the Allan integral stays finite.
+#[test]
+fn table_extrapolation_is_bounded() {
+    let l = Laser { label: String::new(), noise: vec![], table: Some(SpectrumTable { unit: SpectrumUnit::SY, points: vec![[1.0, 1e-30], [2.0, 1e-30 / 16.0], [4.0, 1e-31]] }), high_cutoff_hz: 1e3, drift_per_s: 0.0 };
+    let s = Spectrum::from_laser(&l, 5e14);
+    assert!(rel(s.s_y(0.5), 1e-30 * 4.0) < 1e-12, "{}", s.s_y(0.5));
+    assert!(rel(s.s_y(1.5), 1e-30 * 1.5f64.powf(-4.0)) < 1e-12);
+}
