@@ -12,10 +12,10 @@ use crate::error::InputError;
 use crate::sequence::Probe;
 
 /// Grid intervals on the flank when searching the operating point.
-const SEARCH_POINTS: usize = 32;
+const SEARCH_POINTS: usize = 24;
 /// Steps of the outward walk that finds the edge of the central feature, over
 /// EDGE_SPAN / (probe duration) Hz.
-const EDGE_STEPS: usize = 64;
+const EDGE_STEPS: usize = 32;
 const EDGE_SPAN: f64 = 4.0;
 /// Fraction of the feature's height excluded at its top and bottom when searching the
 /// best slope-to-noise point.
@@ -220,11 +220,33 @@ pub fn operating_point(probe: &Probe, ro: &Readout, rule: OperatingPointRule) ->
     } else if best_k == 0 || best_k == SEARCH_POINTS {
         at(best_k)
     } else {
-        let (m0, m1, m2) = (merits[best_k - 1], merits[best_k], merits[best_k + 1]);
-        let denom = m0 - 2.0 * m1 + m2;
-        let shift = if denom < 0.0 { 0.5 * (m0 - m2) / denom } else { 0.0 };
-        let nu = at(best_k) + shift.clamp(-1.0, 1.0) * (flank_hi - flank_lo) / SEARCH_POINTS as f64;
-        if merit(probe, ro, nu, step) >= m1 { nu } else { at(best_k) }
+        // Successive parabolic interpolation on the bracket around the best grid point.
+        let (mut x0, mut x1, mut x2) = (at(best_k - 1), at(best_k), at(best_k + 1));
+        let (mut m0, mut m1, mut m2) = (merits[best_k - 1], merits[best_k], merits[best_k + 1]);
+        for _ in 0..6 {
+            let (a, b) = ((x1 - x0) * (m1 - m2), (x1 - x2) * (m1 - m0));
+            let denom = a - b;
+            if denom == 0.0 {
+                break;
+            }
+            let x = x1 - 0.5 * ((x1 - x0) * a - (x1 - x2) * b) / denom;
+            if !(x > x0 && x < x2) || (x - x1).abs() < 1e-12 * (x2 - x0) {
+                break;
+            }
+            let m = merit(probe, ro, x, step);
+            if x < x1 {
+                if m > m1 {
+                    (x2, m2, x1, m1) = (x1, m1, x, m);
+                } else {
+                    (x0, m0) = (x, m);
+                }
+            } else if m > m1 {
+                (x0, m0, x1, m1) = (x1, m1, x, m);
+            } else {
+                (x2, m2) = (x, m);
+            }
+        }
+        x1
     };
     let nu = match rule {
         OperatingPointRule::BestSlopeToNoise => best_hz,

@@ -30,7 +30,7 @@ fn default_tau_max() -> f64 {
     1e6
 }
 fn default_plot_points() -> usize {
-    241
+    161
 }
 
 impl Default for EvalOptions {

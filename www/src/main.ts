@@ -1,5 +1,5 @@
-// The page: loads the engine, keeps the workspace, recomputes on every edit (at most one
-// animation frame later) and redraws the table and the plots.
+// The page: loads the engine, keeps the workspace, recomputes on every edit (at once, or in
+// the next animation frame when edits come faster than frames) and redraws what changed.
 
 import { clear, h } from "./dom";
 import { Editor } from "./editor";
@@ -42,8 +42,12 @@ class App {
   private editor: Editor;
   private demos: Design[];
   private pending = false;
+  /** An update ran since the last animation frame: further edits wait for the next one. */
+  private frameUsed = false;
   private dirty = new Set<Slot>();
   private all = false;
+  /** What the design list was last drawn from. */
+  private listKey = "";
   private els = {
     list: byId<HTMLUListElement>("design-list"),
     dup: byId<HTMLButtonElement>("dup-design"),
@@ -185,7 +189,7 @@ class App {
 
   // ----- updates ---------------------------------------------------------------------------
 
-  /** Schedules a recompute of `slot` in the next animation frame. */
+  /** Recomputes `slot` now, or in the next animation frame if an update ran in this one. */
   private request(slot: Slot): void {
     this.dirty.add(slot);
     this.schedule();
@@ -196,11 +200,20 @@ class App {
     this.schedule();
   }
 
+  /**
+   * Updates at once, in the event handler of the edit; edits that come faster than frames are
+   * gathered and updated together in the next animation frame, so there is at most one update
+   * per frame. `cw-edit` marks the (first) edit.
+   */
   private schedule(): void {
     if (this.pending) return;
-    this.pending = true;
     performance.mark("cw-edit");
-    requestAnimationFrame(() => this.update());
+    if (this.frameUsed) {
+      this.pending = true;
+      requestAnimationFrame(() => this.update());
+    } else {
+      this.update();
+    }
   }
 
   private redrawPending = false;
@@ -215,6 +228,12 @@ class App {
 
   private update(): void {
     this.pending = false;
+    if (!this.frameUsed) {
+      this.frameUsed = true;
+      requestAnimationFrame(() => {
+        this.frameUsed = false;
+      });
+    }
     performance.mark("cw-frame");
     const slots = this.all ? [...this.state.slots] : [...this.dirty].filter((s) => this.state.slots.includes(s));
     this.all = false;
@@ -279,7 +298,8 @@ class App {
     drawTable(this.els.table, this.state.slots, sel?.uid ?? 0);
     this.drawPlots();
     drawDetails(this.els.details, sel);
-    this.els.selectedName.textContent = sel ? sel.design.name || "(unnamed)" : "none";
+    const selName = sel ? sel.design.name || "(unnamed)" : "none";
+    if (this.els.selectedName.textContent !== selName) this.els.selectedName.textContent = selName;
     if (sel) {
       this.editor.showProblems(sel);
       this.editor.showSummary(sel);
@@ -292,7 +312,7 @@ class App {
     const withResult = this.state.slots.filter((s) => s.evaluation);
     drawSigma(
       this.els.sigma,
-      withResult.map((s) => ({ colour: s.colour, name: s.design.name, selected: s === sel, evaluation: s.evaluation! })),
+      withResult.map((s) => ({ uid: s.uid, colour: s.colour, name: s.design.name, selected: s === sel, evaluation: s.evaluation! })),
       this.state.targetDraft || this.state.targetProblem ? null : this.state.target,
       this.els.breakdown.checked,
     );
@@ -306,6 +326,9 @@ class App {
 
   private drawList(): void {
     const list = this.els.list;
+    const key = JSON.stringify([this.state.selectedUid, this.state.slots.map((s) => [s.uid, s.colour, s.design.name, s.problems.length + s.drafts.size])]);
+    if (key === this.listKey) return;
+    this.listKey = key;
     const hadFocus = list.contains(document.activeElement);
     clear(list);
     let focusTarget: HTMLButtonElement | null = null;

@@ -12,6 +12,8 @@ const MINUS = "\u2212";
 
 /** What one design contributes to the Allan-deviation plot. */
 export interface CurveSet {
+  /** The design's identity, so that its curves are redrawn only when they change. */
+  uid: number;
   colour: number;
   name: string;
   selected: boolean;
@@ -153,15 +155,51 @@ function clipRect(svg: SVGSVGElement, b: Box): string {
 
 const MECHANISMS = ["laser", "projection", "dick"] as const;
 
+/** What one design's group in the Allan-deviation plot was last drawn from. */
+interface DrawnCurves {
+  g: SVGGElement;
+  evaluation: Evaluation;
+  breakdown: boolean;
+  className: string;
+  name: string;
+}
+
+/**
+ * What a plot container shows: `frame` names the axes, grid and scales it was drawn for, so
+ * that an edit which leaves them alone redraws only the curves that changed.
+ */
+interface SigmaView {
+  frame: string;
+  plot: SVGGElement | null;
+  path: (tau: number[], v: number[]) => string;
+  designs: Map<number, DrawnCurves>;
+}
+
+const sigmaViews = new WeakMap<HTMLElement, SigmaView>();
+
+/** Replaces the plot with a note, unless `frame` says that the same note is already shown. */
+function emptyPlot(container: HTMLElement, b: Box, label: string, note: string, frame: string, last: string | undefined): void {
+  if (last === frame) return;
+  const svg = svgFor(container, b, label);
+  svg.append(s("text", { x: b.width / 2, y: b.height / 2, "text-anchor": "middle", class: "empty" }, note));
+}
+
 /**
  * Allan deviation against averaging time for every design: total solid, the mechanisms
- * dashed or dotted, the free-running laser faint, the target as a grey line.
+ * dashed or dotted, the free-running laser faint, the target as a grey line. Axes and grid
+ * are kept while their ranges stay; only the curves of designs whose result changed are redrawn.
  */
 export function drawSigma(container: HTMLElement, sets: CurveSet[], target: number | null, breakdownForAll: boolean): void {
+  const label = "Allan deviation sigma_y(tau) of every design against averaging time, log-log";
   const b = box(container, 0.56, 300, 500);
-  const svg = svgFor(container, b, "Allan deviation sigma_y(tau) of every design against averaging time, log-log");
+  const last = sigmaViews.get(container);
+  const empty = (note: string): void => {
+    const frame = `empty|${b.width}|${b.height}|${note}`;
+    emptyPlot(container, b, label, note, frame, last?.frame);
+    sigmaViews.set(container, { frame, plot: null, path: () => "", designs: new Map() });
+  };
   if (sets.length === 0) {
-    svg.append(s("text", { x: b.width / 2, y: b.height / 2, "text-anchor": "middle", class: "empty" }, "No design to plot"));
+    empty("No design to plot");
     return;
   }
   let tLo = Infinity;
@@ -172,8 +210,10 @@ export function drawSigma(container: HTMLElement, sets: CurveSet[], target: numb
   let totalHi = 0;
   for (const set of sets) {
     const c = set.evaluation.curve;
-    c.tau_s.forEach((t, i) => {
-      if (!positive(t)) return;
+    const n = c.tau_s.length;
+    for (let i = 0; i < n; i++) {
+      const t = c.tau_s[i];
+      if (!positive(t)) continue;
       tLo = Math.min(tLo, t);
       tHi = Math.max(tHi, t);
       for (const v of [c.total[i], c.laser[i], c.projection[i], c.dick[i]]) {
@@ -187,10 +227,10 @@ export function drawSigma(container: HTMLElement, sets: CurveSet[], target: numb
         totalHi = Math.max(totalHi, c.total[i]);
       }
       if (positive(c.free_laser[i]) && c.free_laser[i] < totalHi * 100) yHi = Math.max(yHi, c.free_laser[i]);
-    });
+    }
   }
   if (!(tHi > tLo) || !(yHi > 0)) {
-    svg.append(s("text", { x: b.width / 2, y: b.height / 2, "text-anchor": "middle", class: "empty" }, "No finite values to plot"));
+    empty("No finite values to plot");
     return;
   }
   // Keep the view on the totals: mechanisms far below them are cut off at three decades.
@@ -203,6 +243,56 @@ export function drawSigma(container: HTMLElement, sets: CurveSet[], target: numb
   const yMax = 10 ** Math.ceil(Math.log10(yHi));
   const xMin = 10 ** Math.floor(Math.log10(tLo) + 1e-9);
   const xMax = 10 ** Math.ceil(Math.log10(tHi) - 1e-9);
+  const frame = [b.width, b.height, xMin, xMax, yMin, yMax, target].join("|");
+  const view: SigmaView = last && last.frame === frame && last.plot ? last : sigmaFrame(container, b, label, frame, xMin, xMax, yMin, yMax, target);
+  sigmaViews.set(container, view);
+  const plot = view.plot!;
+
+  // Unselected designs first, so the selected one is drawn on top.
+  const ordered = [...sets].sort((a, c) => Number(a.selected) - Number(c.selected));
+  const wanted: SVGGElement[] = [];
+  const keep = new Set<number>();
+  for (const set of ordered) {
+    keep.add(set.uid);
+    const breakdown = set.selected || breakdownForAll;
+    const className = `design cw-c${set.colour}${set.selected ? " selected" : ""}`;
+    let drawn = view.designs.get(set.uid);
+    if (!drawn) {
+      const g = s("g", { class: className, "data-name": set.name });
+      drawn = { g, evaluation: set.evaluation, breakdown, className, name: set.name };
+      fillCurves(g, set.evaluation, breakdown, view.path);
+      view.designs.set(set.uid, drawn);
+    } else {
+      if (drawn.evaluation !== set.evaluation || drawn.breakdown !== breakdown) {
+        drawn.evaluation = set.evaluation;
+        drawn.breakdown = breakdown;
+        fillCurves(drawn.g, set.evaluation, breakdown, view.path);
+      }
+      if (drawn.className !== className) {
+        drawn.className = className;
+        drawn.g.setAttribute("class", className);
+      }
+      if (drawn.name !== set.name) {
+        drawn.name = set.name;
+        drawn.g.setAttribute("data-name", set.name);
+      }
+    }
+    wanted.push(drawn.g);
+  }
+  for (const [uid, drawn] of view.designs) {
+    if (!keep.has(uid)) {
+      drawn.g.remove();
+      view.designs.delete(uid);
+    }
+  }
+  // The design groups follow the target line, in drawing order; move them only when it changed.
+  const present = [...plot.children].filter((el) => el.tagName === "g");
+  if (present.length !== wanted.length || present.some((el, i) => el !== wanted[i])) plot.append(...wanted);
+}
+
+/** Draws the grid, axes, titles, clip and target line of the Allan-deviation plot. */
+function sigmaFrame(container: HTMLElement, b: Box, label: string, frame: string, xMin: number, xMax: number, yMin: number, yMax: number, target: number | null): SigmaView {
+  const svg = svgFor(container, b, label);
   const x = scaleLog().domain([xMin, xMax]).range([b.left, b.width - b.right]);
   const y = scaleLog().domain([yMin, yMax]).range([b.height - b.bottom, b.top]);
 
@@ -228,21 +318,37 @@ export function drawSigma(container: HTMLElement, sets: CurveSet[], target: numb
       .defined((i) => positive(tau[i]) && positive(v[i]))
       .x((i) => x(tau[i]))
       .y((i) => y(Math.max(v[i], yMin / 10)))(tau.map((_, i) => i)) ?? "";
-  // Unselected designs first, so the selected one is drawn on top.
-  const ordered = [...sets].sort((a, c) => Number(a.selected) - Number(c.selected));
-  for (const set of ordered) {
-    const c = set.evaluation.curve;
-    const g = plot.append("g").attr("class", `design cw-c${set.colour}${set.selected ? " selected" : ""}`).attr("data-name", set.name);
-    if (set.selected || breakdownForAll) {
-      g.append("path").attr("class", "curve free").attr("d", path(c.tau_s, c.free_laser));
-      for (const m of MECHANISMS) g.append("path").attr("class", `curve ${m}`).attr("d", path(c.tau_s, c[m]));
-    }
-    g.append("path").attr("class", "curve total").attr("d", path(c.tau_s, c.total));
-  }
+  return { frame, plot: plot.node(), path, designs: new Map() };
 }
+
+/** The curves of one design: the total, and with `breakdown` the mechanisms and the free laser. */
+function fillCurves(g: SVGGElement, evaluation: Evaluation, breakdown: boolean, path: (tau: number[], v: number[]) => string): void {
+  const c = evaluation.curve;
+  const curves: [string, string][] = [];
+  if (breakdown) {
+    curves.push(["curve free", path(c.tau_s, c.free_laser)]);
+    for (const m of MECHANISMS) curves.push([`curve ${m}`, path(c.tau_s, c[m])]);
+  }
+  curves.push(["curve total", path(c.tau_s, c.total)]);
+  // The same curves as before: keep the path elements, change only the shapes that moved.
+  const old = g.children;
+  if (old.length === curves.length && curves.every(([cls], i) => old[i].getAttribute("class") === cls)) {
+    curves.forEach(([, d], i) => {
+      if (old[i].getAttribute("d") !== d) old[i].setAttribute("d", d);
+    });
+    return;
+  }
+  clear(g);
+  g.append(...curves.map(([cls, d]) => s("path", { class: cls, d })));
+}
+
+const legendKeys = new WeakMap<HTMLElement, string>();
 
 /** The key of line styles and the design colours, as HTML (names inserted as text). */
 export function drawLegend(container: HTMLElement, sets: { colour: number; name: string; stale: boolean }[]): void {
+  const key = JSON.stringify(sets);
+  if (legendKeys.get(container) === key) return;
+  legendKeys.set(container, key);
   clear(container);
   const sample = (cls: string): SVGSVGElement => s("svg", { width: 40, height: 14, "aria-hidden": "true", class: "key" }, s("line", { x1: 2, x2: 38, y1: 7, y2: 7, class: `curve ${cls}` }));
   const designs = h("ul", { class: "legend-designs", attrs: { "aria-label": "Designs" } });
@@ -261,82 +367,156 @@ export function drawLegend(container: HTMLElement, sets: { colour: number; name:
   container.append(designs, styles);
 }
 
+/**
+ * What a plot of the selected design shows: `frame` names its axes, `evaluation` and `colour`
+ * its curves, `layer` the nodes drawn from them (the last children of the plot).
+ */
+interface SelectedView {
+  frame: string;
+  evaluation: Evaluation | null;
+  colour: number;
+  layer: Element[];
+}
+
+const selectedViews = new WeakMap<HTMLElement, SelectedView>();
+
+/**
+ * Keeps the frame (axes, titles) of a plot of the selected design while `frame` is unchanged and
+ * redraws its curves only when the evaluation or the colour changed, and then only if they look
+ * different. `drawFrame` draws a new frame into the emptied container and returns its svg;
+ * `drawLayer` returns the curves, not yet in the page.
+ */
+function selectedPlot(container: HTMLElement, frame: string, evaluation: Evaluation | null, colour: number, drawFrame: () => SVGSVGElement, drawLayer: () => Element[]): void {
+  const last = selectedViews.get(container);
+  if (last && last.frame === frame) {
+    if (last.evaluation === evaluation && last.colour === colour) return;
+    const layer = drawLayer();
+    if (layer.length === last.layer.length && layer.every((el, i) => el.isEqualNode(last.layer[i]))) {
+      selectedViews.set(container, { frame, evaluation, colour, layer: last.layer });
+      return;
+    }
+    for (const el of last.layer) el.remove();
+    container.querySelector("svg")?.append(...layer);
+    selectedViews.set(container, { frame, evaluation, colour, layer });
+    return;
+  }
+  const svg = drawFrame();
+  const layer = drawLayer();
+  svg.append(...layer);
+  selectedViews.set(container, { frame, evaluation, colour, layer });
+}
+
+/** The note shown instead of a plot of the selected design. */
+function selectedEmpty(container: HTMLElement, b: Box, label: string, note: string): void {
+  const frame = `empty|${b.width}|${b.height}|${note}`;
+  const last = selectedViews.get(container);
+  emptyPlot(container, b, label, note, frame, last?.frame);
+  selectedViews.set(container, { frame, evaluation: null, colour: 0, layer: [] });
+}
+
 /** The sensitivity function g(t) over one cycle. */
 export function drawSensitivity(container: HTMLElement, evaluation: Evaluation | null, colour: number): void {
+  const label = "Sensitivity function g(t) over one cycle of the selected design";
   const b = box(container, 0.62, 220, 330);
   b.left = 64;
-  const svg = svgFor(container, b, "Sensitivity function g(t) over one cycle of the selected design");
   const t = evaluation?.sensitivity.t_s ?? [];
   const gv = evaluation?.sensitivity.g ?? [];
   const n = Math.min(t.length, gv.length);
   const tMax = n > 0 ? t[n - 1] : 0;
   if (n < 2 || !(tMax > 0)) {
-    svg.append(s("text", { x: b.width / 2, y: b.height / 2, "text-anchor": "middle", class: "empty" }, "No sensitivity function"));
+    selectedEmpty(container, b, label, "No sensitivity function");
     return;
   }
   const u = timeUnit(tMax);
   const x = scaleLinear().domain([0, tMax * u.factor]).range([b.left, b.width - b.right]);
   const y = scaleLinear().domain([-1.1, 1.1]).range([b.height - b.bottom, b.top]);
-  const root = select(svg);
-  linearAxis(root.append("g").attr("class", "axis x").attr("transform", `translate(0 ${b.height - b.bottom})`), axisBottom(x).ticks(6).tickSizeOuter(0));
-  linearAxis(
-    root.append("g").attr("class", "axis y").attr("transform", `translate(${b.left} 0)`),
-    axisLeft(y).tickValues([-1, -0.5, 0, 0.5, 1]).tickFormat((d) => String(d).replace("-", MINUS)).tickSizeOuter(0),
+  const frame = [b.width, b.height, tMax * u.factor, u.unit].join("|");
+  selectedPlot(
+    container,
+    frame,
+    evaluation,
+    colour,
+    () => {
+      const svg = svgFor(container, b, label);
+      const root = select(svg);
+      linearAxis(root.append("g").attr("class", "axis x").attr("transform", `translate(0 ${b.height - b.bottom})`), axisBottom(x).ticks(6).tickSizeOuter(0));
+      linearAxis(
+        root.append("g").attr("class", "axis y").attr("transform", `translate(${b.left} 0)`),
+        axisLeft(y).tickValues([-1, -0.5, 0, 0.5, 1]).tickFormat((d) => String(d).replace("-", MINUS)).tickSizeOuter(0),
+      );
+      axisTitle(svg, b, `time in the cycle t (${u.unit})`, "g(t)");
+      root.append("line").attr("class", "zero").attr("x1", b.left).attr("x2", b.width - b.right).attr("y1", y(0)).attr("y2", y(0));
+      return svg;
+    },
+    () => {
+      const idx = Array.from({ length: n }, (_, i) => i).filter((i) => Number.isFinite(t[i]) && Number.isFinite(gv[i]));
+      const g = s(
+        "g",
+        { class: `design cw-c${colour}` },
+        s("path", { class: "fill", d: area<number>().x((i) => x(t[i] * u.factor)).y0(y(0)).y1((i) => y(gv[i]))(idx) ?? "" }),
+        s("path", { class: "curve total", d: line<number>().x((i) => x(t[i] * u.factor)).y((i) => y(gv[i]))(idx) ?? "" }),
+      );
+      return [g];
+    },
   );
-  axisTitle(svg, b, `time in the cycle t (${u.unit})`, "g(t)");
-  root.append("line").attr("class", "zero").attr("x1", b.left).attr("x2", b.width - b.right).attr("y1", y(0)).attr("y2", y(0));
-  const idx = Array.from({ length: n }, (_, i) => i).filter((i) => Number.isFinite(t[i]) && Number.isFinite(gv[i]));
-  const g = root.append("g").attr("class", `design cw-c${colour}`);
-  g.append("path")
-    .attr("class", "fill")
-    .attr("d", area<number>().x((i) => x(t[i] * u.factor)).y0(y(0)).y1((i) => y(gv[i]))(idx) ?? "");
-  g.append("path")
-    .attr("class", "curve total")
-    .attr("d", line<number>().x((i) => x(t[i] * u.factor)).y((i) => y(gv[i]))(idx) ?? "");
 }
 
 /** Excitation and measured excitation against detuning, with the operating points marked. */
 export function drawLineShape(container: HTMLElement, evaluation: Evaluation | null, colour: number): void {
+  const label = "Line shape of the selected design: excitation against laser detuning, with the lock's operating points";
   const b = box(container, 0.62, 220, 330);
   b.left = 64;
-  const svg = svgFor(container, b, "Line shape of the selected design: excitation against laser detuning, with the lock's operating points");
   const ls = evaluation?.line_shape;
   const d = ls?.detuning_hz ?? [];
   const n = Math.min(d.length, ls?.excitation.length ?? 0, ls?.measured.length ?? 0);
   const idx = Array.from({ length: n }, (_, i) => i).filter((i) => Number.isFinite(d[i]) && Number.isFinite(ls!.excitation[i]) && Number.isFinite(ls!.measured[i]));
   if (!ls || idx.length < 2) {
-    svg.append(s("text", { x: b.width / 2, y: b.height / 2, "text-anchor": "middle", class: "empty" }, "No line shape"));
+    selectedEmpty(container, b, label, "No line shape");
     return;
   }
-  const span = Math.max(...idx.map((i) => Math.abs(d[i])));
+  let span = 0;
+  for (const i of idx) span = Math.max(span, Math.abs(d[i]));
   const u = frequencyUnit(span);
   const x = scaleLinear().domain([-span * u.factor, span * u.factor]).range([b.left, b.width - b.right]);
   const y = scaleLinear().domain([0, 1]).range([b.height - b.bottom, b.top]);
-  const root = select(svg);
-  linearAxis(
-    root.append("g").attr("class", "axis x").attr("transform", `translate(0 ${b.height - b.bottom})`),
-    axisBottom(x)
-      .ticks(6)
-      .tickFormat((v) => String(v).replace("-", MINUS))
-      .tickSizeOuter(0),
+  const frame = [b.width, b.height, span * u.factor, u.unit].join("|");
+  selectedPlot(
+    container,
+    frame,
+    evaluation,
+    colour,
+    () => {
+      const svg = svgFor(container, b, label);
+      const root = select(svg);
+      linearAxis(
+        root.append("g").attr("class", "axis x").attr("transform", `translate(0 ${b.height - b.bottom})`),
+        axisBottom(x)
+          .ticks(6)
+          .tickFormat((v) => String(v).replace("-", MINUS))
+          .tickSizeOuter(0),
+      );
+      linearAxis(root.append("g").attr("class", "axis y").attr("transform", `translate(${b.left} 0)`), axisLeft(y).ticks(5).tickSizeOuter(0));
+      axisTitle(svg, b, `laser detuning (${u.unit})`, "excitation probability");
+      return svg;
+    },
+    () => {
+      const g = s(
+        "g",
+        { class: `design cw-c${colour}` },
+        s("path", { class: "curve total", d: line<number>().x((i) => x(d[i] * u.factor)).y((i) => y(ls.excitation[i]))(idx) ?? "" }),
+        s("path", { class: "curve measured", d: line<number>().x((i) => x(d[i] * u.factor)).y((i) => y(ls.measured[i]))(idx) ?? "" }),
+      );
+      const layer: Element[] = [g];
+      const op = evaluation!.operating_point;
+      if (Number.isFinite(op.detuning_hz) && Number.isFinite(op.measured_excitation)) {
+        for (const sign of [-1, 1]) {
+          const px = x(sign * op.detuning_hz * u.factor);
+          const py = y(op.measured_excitation);
+          g.append(s("line", { class: "op-guide", x1: px, x2: px, y1: py, y2: b.height - b.bottom }), s("circle", { class: "op-point", cx: px, cy: py, r: 6 }));
+        }
+        layer.push(s("text", { class: "op-label", x: b.left + 6, y: b.top + 12 }, `○ ±${numberText(op.detuning_hz * u.factor, 3)} ${u.unit}`));
+      }
+      return layer;
+    },
   );
-  linearAxis(root.append("g").attr("class", "axis y").attr("transform", `translate(${b.left} 0)`), axisLeft(y).ticks(5).tickSizeOuter(0));
-  axisTitle(svg, b, `laser detuning (${u.unit})`, "excitation probability");
-  const g = root.append("g").attr("class", `design cw-c${colour}`);
-  g.append("path")
-    .attr("class", "curve total")
-    .attr("d", line<number>().x((i) => x(d[i] * u.factor)).y((i) => y(ls.excitation[i]))(idx) ?? "");
-  g.append("path")
-    .attr("class", "curve measured")
-    .attr("d", line<number>().x((i) => x(d[i] * u.factor)).y((i) => y(ls.measured[i]))(idx) ?? "");
-  const op = evaluation!.operating_point;
-  if (Number.isFinite(op.detuning_hz) && Number.isFinite(op.measured_excitation)) {
-    for (const sign of [-1, 1]) {
-      const px = x(sign * op.detuning_hz * u.factor);
-      const py = y(op.measured_excitation);
-      g.append("line").attr("class", "op-guide").attr("x1", px).attr("x2", px).attr("y1", py).attr("y2", b.height - b.bottom);
-      g.append("circle").attr("class", "op-point").attr("cx", px).attr("cy", py).attr("r", 6);
-    }
-    svg.append(s("text", { class: "op-label", x: b.left + 6, y: b.top + 12 }, `○ ±${numberText(op.detuning_hz * u.factor, 3)} ${u.unit}`));
-  }
 }
