@@ -81,14 +81,17 @@ fn slope(probe: &Probe, ro: &Readout, nu: f64, step: f64) -> f64 {
     ro.contrast() * (probe.excitation(nu + step) - probe.excitation(nu - step)) / (2.0 * step)
 }
 
-/// Figure of merit |dP'/dnu| / sqrt(P'(1-P')), or 0 where it is undefined.
+/// Figure of merit |dP'/dnu| / sqrt(P'(1-P')), or 0 where it is undefined. P is taken as
+/// the mean of the two points of the central difference (error of order step^2, 1e-10
+/// of the feature's width squared).
 fn merit(probe: &Probe, ro: &Readout, nu: f64, step: f64) -> f64 {
-    let pm = ro.measured(probe.excitation(nu));
+    let (a, b) = (probe.excitation(nu + step), probe.excitation(nu - step));
+    let pm = ro.measured((a + b) / 2.0);
     let var = pm * (1.0 - pm);
     if var <= 1e-300 {
         return 0.0;
     }
-    slope(probe, ro, nu, step).abs() / libm::sqrt(var)
+    (ro.contrast() * (a - b) / (2.0 * step)).abs() / libm::sqrt(var)
 }
 
 /// Root of `f` in [a, b] where f changes sign, by the Illinois variant of regula falsi.
@@ -174,7 +177,7 @@ pub fn operating_point(probe: &Probe, ro: &Readout, rule: OperatingPointRule) ->
                 None => rising = Some(up),
                 Some(r) if r != up => {
                     let sign = if r { 1.0 } else { -1.0 };
-                    edge = golden(|x| probe.excitation(x), (nu - 2.0 * h).max(0.0), nu, sign, 30);
+                    edge = golden(|x| probe.excitation(x), (nu - 2.0 * h).max(0.0), nu, sign, 20);
                     break;
                 }
                 _ => {}
