@@ -12,11 +12,13 @@ pub mod demo;
 pub mod design;
 pub mod dick;
 pub mod error;
+pub mod estimate;
 pub mod noise;
 pub mod projection;
 pub mod result;
 pub mod sensitivity;
 pub mod sequence;
+pub mod synthesis;
 
 pub use budget::evaluate;
 pub use design::Design;
