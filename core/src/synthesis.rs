@@ -522,17 +522,7 @@ pub fn flicker_pm_equivalent_cutoff_hz(tau0_s: f64) -> Result<f64, InputError> {
 /// panels of 8 points).
 pub const MAX_EXPECTED_M: u64 = 1_000_000;
 
-/// 8-point Gauss-Legendre nodes and weights on [-1, 1] (common practice).
-const GL8: [(f64, f64); 8] = [
-    (-0.960_289_856_497_536_2, 0.101_228_536_290_376_26),
-    (-0.796_666_477_413_626_7, 0.222_381_034_453_374_47),
-    (-0.525_532_409_916_329, 0.313_706_645_877_887_3),
-    (-0.183_434_642_495_649_8, 0.362_683_783_378_362),
-    (0.183_434_642_495_649_8, 0.362_683_783_378_362),
-    (0.525_532_409_916_329, 0.313_706_645_877_887_3),
-    (0.796_666_477_413_626_7, 0.222_381_034_453_374_47),
-    (0.960_289_856_497_536_2, 0.101_228_536_290_376_26),
-];
+use crate::allan::GL8;
 
 /// Expected value of an estimator's variance (dimensionless) at averaging factor `m` for
 /// the discrete process that [`synthesize`] makes from `terms` at `tau0_s` (stationary
