@@ -2,7 +2,7 @@
 //! functions, and the IEEE Std 1139-2008 closed forms of the power laws.
 //!
 //! sigma_y^2(tau)     = 2 int_0^inf S_y(f) sin^4(pi f tau) / (pi f tau)^2 df
-//!   (Barnes et al., IEEE Trans. Instrum. Meas. IM-20, 105 (1971));
+//!   (IEEE Trans. Instrum. Meas. IM-20, 105 (1971));
 //! mod sigma_y^2(tau) = 2 int_0^inf S_y(f) sin^6(pi f tau) / (pi f tau)^4 df
 //!   (continuous-averaging limit of the modified Allan variance).
 //!

@@ -1,7 +1,7 @@
 //! The Dick effect: laser noise aliased by the periodic interrogation.
 //!
 //! sigma_y^2(tau) = (1/tau) sum_{m>=1} (|g_m|^2 / g_0^2) S_y(m / T_c)
-//! (Santarelli et al., IEEE Trans. UFFC 45, 887 (1998)), with the complex Fourier
+//! (IEEE Trans. UFFC 45, 887 (1998)), with the complex Fourier
 //! coefficients g_m = (1/T_c) integral_0^T_c g(t) exp(-2 pi i m t / T_c) dt, whose squared
 //! magnitude equals (g_m^c)^2 + (g_m^s)^2 of the cosine/sine form.
 //!

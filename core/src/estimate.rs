@@ -5,8 +5,8 @@
 //! Data are evenly spaced, either fractional frequency y_i (dimensionless, each the average
 //! over one sample interval tau0) or phase x_i (seconds). Frequency data are used as the
 //! phase x_0 = 0, x_(k+1) = x_k + tau0 y_k, so N frequency values are N + 1 phase points.
-//! With tau = m tau0 and N_x phase points (W. J. Riley, Handbook of Frequency Stability
-//! Analysis, NIST Special Publication 1065 (2008), sections 5.2.4, 5.2.5 and 5.2.9):
+//! With tau = m tau0 and N_x phase points (Handbook of Frequency Stability
+//! Analysis, Special Publication 1065 (2008), sections 5.2.4, 5.2.5 and 5.2.9):
 //!
 //! - overlapping Allan variance: sum over i < N_x - 2m of (x_(i+2m) - 2 x_(i+m) + x_i)^2,
 //!   divided by 2 tau^2 (N_x - 2m);
@@ -37,7 +37,7 @@
 //!
 //! The EDF of each point is the Gaussian value 2 E[V]^2 / Var[V] of the estimator V for
 //! power-law noise S_y ~ f^alpha, computed by the finite-difference method that the handbook
-//! cites for all three estimators (C. A. Greenhall and W. J. Riley, "Uncertainty of stability
+//! cites for all three estimators ("Uncertainty of stability
 //! variances based on finite differences", Proc. 35th PTTI Meeting (2003)): with the
 //! generalized autocovariance sw(t) of the integrated phase (t in units of tau; -|t|,
 //! t^2 ln|t|, |t|^3, -t^4 ln|t|, -|t|^5 for alpha = 2 .. -2), the phase averaged over a
@@ -51,11 +51,11 @@
 //! kinks) and by 8-point Gauss-Legendre on geometrically growing panels elsewhere; for the
 //! flicker laws (alpha = +-1) the lags are truncated at 50 tau (the neglected tail is below
 //! 1e-5 of the sum). The simple formulas of the handbook for the overlapping Allan variance
-//! (from D. A. Howe, D. W. Allan and J. A. Barnes, Proc. 35th Frequency Control Symposium,
+//! (from Proc. 35th Frequency Control Symposium,
 //! 669 (1981)) are given by [`edf_allan_simple`]; they agree with this within 3 % for white
 //! FM and white PM and within about 12 % for flicker and random-walk FM, and overestimate
 //! flicker PM at large m (Monte Carlo on synthesised data sides with this method there).
-//! The method models continuous-time noise; for Kasdin's discrete processes
+//! The method models continuous-time noise; for the discrete fractional-differencing processes
 //! ([`crate::synthesis`]) the EDF differs by up to about 20 % at m = 1 and 2 (random-walk FM:
 //! 0.89 M instead of M at m = 1) and for flicker PM (about 20 % lower, i.e. conservative).
 //!
@@ -66,7 +66,7 @@
 //!
 //! # Noise identification
 //!
-//! The lag-1 autocorrelation method (handbook section 5.5.4; W. J. Riley and C. A. Greenhall,
+//! The lag-1 autocorrelation method (handbook section 5.5.4; 
 //! "Power law noise identification using the lag 1 autocorrelation", Proc. 18th European
 //! Frequency and Time Forum (2004)): frequency data are averaged over blocks of m, phase data
 //! decimated by m; the series is differenced until delta = r1/(1 + r1) < 0.25 (at most twice)
@@ -1186,7 +1186,7 @@ pub fn edf(estimator: Estimator, alpha: i32, m: u64, terms: u64) -> Result<f64, 
 }
 
 /// The simple EDF formulas for the overlapping Allan variance tabulated in the handbook
-/// (after Howe, Allan and Barnes 1981), with `n_phase` phase points and factor `m`
+/// (Proc. 35th Frequency Control Symposium, 669 (1981)), with `n_phase` phase points and factor `m`
 /// (from memory):
 /// white PM (N+1)(N-2m)/(2(N-m)); flicker PM exp(sqrt(ln((N-1)/(2m)) ln((2m+1)(N-1)/4)));
 /// white FM [3(N-1)/(2m) - 2(N-2)/N] 4m^2/(4m^2+5); flicker FM 2(N-2)^2/(2.3N-4.9) for m = 1,

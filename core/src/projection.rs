@@ -1,7 +1,7 @@
 //! Line shape, operating point and the quantum projection noise limit.
 //!
 //! sigma_y(tau) = sqrt(xi^2 P'(1 - P') / N) / (nu0 |dP'/dnu|) * sqrt(T_c / tau)
-//! (Itano et al., Phys. Rev. A 47, 3554 (1993)), where P' = e_g + (1 - e_g - e_e) P is
+//! (Phys. Rev. A 47, 3554 (1993)), where P' = e_g + (1 - e_g - e_e) P is
 //! the probability of reading "excited" with misassignment probabilities e_g (ground
 //! read as excited) and e_e (excited read as ground) after a majority vote over the
 //! detection rounds, and xi^2 the squeezing factor (Phys. Rev. A 50, 67 (1994)). A GHZ

@@ -1,7 +1,7 @@
 //! The sensitivity function g(t) of a sequence, from the two-level dynamics.
 //!
 //! g(t) is twice the change of the excitation probability per radian of a small laser
-//! phase step at time t (Santarelli et al., IEEE Trans. UFFC 45, 887 (1998)): with the
+//! phase step at time t (IEEE Trans. UFFC 45, 887 (1998)): with the
 //! Bloch vector r(t) propagated forwards from the ground state and the costate
 //! lambda(t) = d w_final / d r(t) propagated backwards, a phase step dphi turns r by
 //! -dphi about z, so g(t) = lambda_x r_y - lambda_y r_x.

@@ -3,7 +3,7 @@
 //!
 //! # Method
 //!
-//! Each term is made by the discrete fractional-differencing filter of N. J. Kasdin,
+//! Each term is made by the discrete fractional-differencing filter of
 //! "Discrete simulation of colored noise and stochastic processes and 1/f^alpha power law
 //! noise generation", Proc. IEEE 83, 802 (1995): white Gaussian innovations w_n of
 //! variance sigma^2 pass through the causal filter (1 - z^-1)^(a/2), whose impulse response
@@ -244,7 +244,7 @@ pub fn innovation_variance(alpha: i32, h: f64, tau0_s: f64) -> Result<f64, Input
     }
 }
 
-/// The first `n` coefficients of Kasdin's filter (1 - z^-1)^(alpha/2), which turns white
+/// The first `n` coefficients of the fractional-differencing filter (1 - z^-1)^(alpha/2), which turns white
 /// noise into noise with S_y proportional to f^alpha: g_0 = 1, g_k = g_(k-1)(k - 1 - alpha/2)/k.
 ///
 /// ```
@@ -442,7 +442,7 @@ fn check_spec(spec: &Spec) -> Result<(), InputError> {
 }
 
 /// Synthesises `spec.points` fractional-frequency values (dimensionless) with one-sided
-/// spectrum S_y(f) = sum h_a f^a at low frequency, by Kasdin's method (module docs);
+/// spectrum S_y(f) = sum h_a f^a at low frequency, by the fractional-differencing method (module docs);
 /// deterministic for a given spec on every platform.
 ///
 /// ```

@@ -14,8 +14,8 @@ fn ramsey(tp: f64, tr: f64, dead_s: f64, laser: Laser) -> Design {
     design(4.3e14, 1, vec![pulse(tp, 0.5), Segment::Free { duration_s: tr }, pulse(tp, 0.5)], dead_s, laser)
 }
 
-/// Ramsey with short pulses: |g_m|^2/g_0^2 = sinc^2(pi m T_R/T_c) (Santarelli et al.,
-/// IEEE Trans. UFFC 45, 887 (1998); Quessada et al., J. Opt. B 5, S150 (2003)).
+/// Ramsey with short pulses: |g_m|^2/g_0^2 = sinc^2(pi m T_R/T_c) (
+/// IEEE Trans. UFFC 45, 887 (1998); J. Opt. B 5, S150 (2003)).
 #[test]
 fn ramsey_weights_are_sinc_squared() {
     let (tp, tr, dead) = (1e-7, 0.3, 0.2);
@@ -103,7 +103,7 @@ fn phase_noise_terms_stop_at_cutoff() {
 
 /// Scaling laws (property tests): doubling the laser's noise power multiplies the Dick
 /// term by sqrt(2); for white laser noise the Dick term vanishes as the dead time goes to
-/// zero (Dick, Proc. 19th PTTI (1987) 133).
+/// zero (Proc. 19th PTTI (1987) 133).
 #[test]
 fn dick_scaling_laws() {
     let mut rng = Rng(77);

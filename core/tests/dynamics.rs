@@ -5,7 +5,7 @@ use clockwright_core::sequence::*;
 use common::*;
 use std::f64::consts::PI;
 
-/// Rabi line shape for a square pulse without decay (e.g. Riis and Sinclair, J. Phys. B 37,
+/// Rabi line shape for a square pulse without decay (e.g. J. Phys. B 37,
 /// 4719 (2004), and any quantum-optics text): P = Omega^2/W^2 sin^2(W t/2), W^2 = Omega^2 + delta^2.
 #[test]
 fn rabi_line_shape_matches_closed_form() {
@@ -136,7 +136,7 @@ fn probe_of(segments: Vec<clockwright_core::design::Segment>, light_shift_hz: f6
 
 /// The hyper-Ramsey preset suppresses the probe light shift: with the same uncompensated
 /// shift during the pulses, the lock centre moves hundreds of times less than with Ramsey,
-/// and the residual grows faster than linearly (Yudin et al., Phys. Rev. A 82, 011804 (2010):
+/// and the residual grows faster than linearly (Phys. Rev. A 82, 011804 (2010):
 /// the residual shift is of higher order in the light shift).
 #[test]
 fn hyper_ramsey_suppresses_the_light_shift() {

@@ -15,7 +15,7 @@ fn rel(a: f64, b: f64) -> f64 {
 }
 
 // ---------------------------------------------------------------------------------------
-// Slow twins: the textbook formulas as literal loops (Riley, NIST SP 1065 (2008), 5.2.4,
+// Slow twins: the textbook formulas as literal loops (Handbook of Frequency Stability Analysis, Special Publication 1065 (2008), 5.2.4,
 // 5.2.5, 5.2.9), terms touching a gap skipped.
 
 fn slow_freq(y: &[f64], est: Estimator, m: usize) -> Option<(f64, u64)> {
@@ -367,7 +367,7 @@ fn modified_edf_white_fm_close_to_discrete() {
     }
 }
 
-/// The simple overlapping-Allan EDF formulas of the handbook (Howe, Allan and Barnes 1981;
+/// The simple overlapping-Allan EDF formulas of the handbook (Proc. 35th Frequency Control Symposium, 669 (1981);
 /// from memory) against the method used: white FM within 3 %, white PM within 4 %, flicker
 /// and random-walk FM within 13 % for m >= 2 (the simple forms are approximations).
 #[test]
@@ -511,7 +511,7 @@ fn selectable_confidence() {
     assert!((rate - 0.95).abs() < 0.03, "coverage {rate}");
 }
 
-/// The lag-1 autocorrelation identification (Riley and Greenhall 2004) finds each power law
+/// The lag-1 autocorrelation identification (Proc. 18th European Frequency and Time Forum (2004)) finds each power law
 /// in synthesised frequency data and in the phase made from it, at m = 1 and 4.
 #[test]
 fn noise_identification_finds_each_law() {

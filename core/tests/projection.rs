@@ -12,7 +12,7 @@ fn ramsey_design(nu0: f64, n: u64, tr: f64, dead: f64) -> Design {
 }
 
 /// Ramsey with short pulses: sigma_y(tau) = 1/(2 pi nu0 T_R) sqrt(T_c/(N tau))
-/// (Itano et al., Phys. Rev. A 47, 3554 (1993); Rev. Mod. Phys. 87, 637 (2015)).
+/// (Phys. Rev. A 47, 3554 (1993); Rev. Mod. Phys. 87, 637 (2015)).
 #[test]
 fn ramsey_projection_limit() {
     for &(nu0, n, tr, dead) in &[(4.29e14, 1u64, 0.5, 0.2), (1.12e15, 4, 0.1, 0.05), (5.18e14, 3000, 0.8, 0.9), (6.42e14, 17, 2.0, 0.3)] {

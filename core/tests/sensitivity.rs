@@ -1,5 +1,5 @@
 //! The sensitivity function g(t) against a brute-force twin: the excitation's response to
-//! a small laser phase step at many instants (the definition of Santarelli et al., IEEE
+//! a small laser phase step at many instants (the definition of IEEE
 //! Trans. UFFC 45, 887 (1998)), on random sequences with and without decay.
 
 mod common;

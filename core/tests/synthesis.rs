@@ -1,4 +1,4 @@
-//! Power-law noise synthesis: generator reference values, FFT convolution and Kasdin's
+//! Power-law noise synthesis: generator reference values, FFT convolution and the fractional-differencing
 //! filter against literal loops, the normalisation against IEEE Std 1139-2008 closed forms
 //! (exact expectation and synthesised data within their confidence intervals).
 
@@ -67,7 +67,7 @@ fn fft_convolution_matches_literal_loops() {
     }
 }
 
-/// Kasdin's filters: (1 - z^-1)^(a/2) times (1 - z^-1)^(-a/2) is the identity, so the
+/// The fractional-differencing filters: (1 - z^-1)^(a/2) times (1 - z^-1)^(-a/2) is the identity, so the
 /// convolution of the coefficient sequences of a and -a is 1, 0, 0, ... (literal loops).
 #[test]
 fn kasdin_filters_invert_each_other() {
@@ -86,7 +86,7 @@ fn kasdin_filters_invert_each_other() {
     }
 }
 
-/// The synthesised series is exactly sigma times the literal convolution of Kasdin's
+/// The synthesised series is exactly sigma times the literal convolution of the fractional-differencing
 /// coefficients with the term's innovations, summed over terms (slow twin of the whole
 /// synthesis, every law at once).
 #[test]

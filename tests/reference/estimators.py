@@ -98,7 +98,7 @@ def check_deviations(t):
                 term_mismatch += int(p["terms"] != nterms)
             measured = worst if missing == 0 and term_mismatch == 0 else float("inf")
             t.check(f"{name} {key} vs allantools.{label} ({len(taus)} octave taus, terms equal: {term_mismatch == 0})", measured, 1e-10,
-                    "NIST SP 1065 (2008) 5.2.4/5.2.5/5.2.9 via allantools")
+                    "Special Publication 1065 (2008) 5.2.4/5.2.5/5.2.9 via allantools")
 
 
 def check_chi2(t):
