@@ -276,8 +276,24 @@ impl Probe {
     pub fn final_state(&self, nu_hz: f64) -> [f64; 3] {
         let det = 2.0 * PI * nu_hz * self.detuning_factor;
         let mut r = GROUND;
-        for s in &self.steps {
-            r = Generator::new(s, det, self.gamma).propagator(s.duration_s).apply(r);
+        // Identical steps (the two pi/2 pulses of Ramsey, say) share one propagator; the
+        // first few distinct ones are remembered on the stack.
+        const KEEP: usize = 8;
+        let mut done = [(0usize, Affine::IDENTITY); KEEP];
+        let mut n_done = 0;
+        for (i, s) in self.steps.iter().enumerate() {
+            let prop = match done[..n_done].iter().find(|(j, _)| self.steps[*j] == *s) {
+                Some(&(_, p)) => p,
+                None => {
+                    let p = Generator::new(s, det, self.gamma).propagator(s.duration_s);
+                    if n_done < KEEP {
+                        done[n_done] = (i, p);
+                        n_done += 1;
+                    }
+                    p
+                }
+            };
+            r = prop.apply(r);
         }
         r
     }
