@@ -131,8 +131,7 @@ impl Model {
     fn free_var(&self, tau: f64, with_drift: bool) -> f64 {
         let mut v: f64 = self.spec.terms.iter().map(|&(a, h)| allan_variance_power_law(a, h, tau, self.spec.f_high)).sum();
         if self.spec.table.is_some() {
-            let table_only = Spectrum { terms: Vec::new(), table: self.spec.table.clone(), f_high: self.spec.f_high };
-            v += variance(&|f| table_only.s_y(f), tau, Variance::Allan, &self.features);
+            v += variance(&|f| self.spec.table_s_y(f), tau, Variance::Allan, &self.features);
         }
         if with_drift {
             v += self.drift * self.drift * tau * tau / 2.0;

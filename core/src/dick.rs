@@ -102,7 +102,7 @@ fn parseval(gf: &SensitivityFunction) -> Parseval {
         let len = p.coef.len().max(1) + 1;
         b[..len].fill(0.0);
         b[0] = h_start;
-        b[1] = -w * g0_of(c0);
+        b[1] = -w * c0;
         for (n, a) in p.coef.iter().enumerate() {
             b[n + 1] += w * a / (n + 1) as f64;
         }
@@ -122,11 +122,6 @@ fn parseval(gf: &SensitivityFunction) -> Parseval {
         e0: ROUNDING * g2,
         e2: ROUNDING * k2 * (ih2 + ih * ih),
     }
-}
-
-#[inline]
-fn g0_of(c0: f64) -> f64 {
-    c0
 }
 
 /// Incremental generator of g_1, g_2, ... .
@@ -233,17 +228,15 @@ fn tail(spec: &Spectrum, tc: f64, m_done: usize, (t0, e0): (f64, f64), (t2, e2):
             _ => {}
         }
     }
-    if let Some(_t) = &spec.table {
+    if let Some(tbl) = &spec.table {
         let f_lo = mf / tc;
         if f_lo < spec.f_high {
             // Largest table value above f_lo: at a node, at f_lo, or at the cut-off.
-            let mut smax = 0.0f64;
-            let tbl = spec.table.as_ref().unwrap();
-            smax = smax.max(table_only(spec, f_lo)).max(table_only(spec, spec.f_high));
+            let mut smax = spec.table_s_y(f_lo).max(spec.table_s_y(spec.f_high));
             for &lf in &tbl.ln_f {
                 let f = libm::exp(lf);
                 if f > f_lo && f <= spec.f_high {
-                    smax = smax.max(table_only(spec, f));
+                    smax = smax.max(spec.table_s_y(f));
                 }
             }
             hi += smax * t0_hi;
@@ -273,18 +266,13 @@ fn tail(spec: &Spectrum, tc: f64, m_done: usize, (t0, e0): (f64, f64), (t2, e2):
             s += k * kq * integral;
         }
         if spec.table.is_some() && x0 < m_h + 0.5 {
-            s += kq * log_quadrature(|x| libm::pow(x, -q) * table_only(spec, x / tc), x0, m_h + 0.5);
+            s += kq * log_quadrature(|x| libm::pow(x, -q) * spec.table_s_y(x / tc), x0, m_h + 0.5);
         }
         s
     } else {
         (lo + hi) / 2.0
     };
     (lo, hi, est.clamp(lo, hi.max(lo)))
-}
-
-fn table_only(spec: &Spectrum, f: f64) -> f64 {
-    let no_terms = Spectrum { terms: Vec::new(), table: spec.table.clone(), f_high: spec.f_high };
-    no_terms.s_y(f)
 }
 
 /// integral_a^b f(x) dx on log-spaced panels with 8-point Gauss-Legendre each.

@@ -310,12 +310,16 @@ impl Spectrum {
             }
             s += h * powi(f, a);
         }
-        if let Some(t) = &self.table {
-            if f <= self.f_high {
-                s += t.eval(f);
-            }
+        s + self.table_s_y(f)
+    }
+
+    /// The tabulated part of S_y(f) alone (0 without a table or above the cut-off), 1/Hz.
+    #[inline]
+    pub fn table_s_y(&self, f: f64) -> f64 {
+        match &self.table {
+            Some(t) if f <= self.f_high => t.eval(f),
+            _ => 0.0,
         }
-        s
     }
 
     /// The spectrum multiplied by a scalar (noise power scaled).
