@@ -70,8 +70,9 @@ impl Model {
     /// Laser noise left by the servo: |1 - H|^2 S_laser. For frequency-noise power laws:
     /// white FM h0 x^2/(1+x^2) = h0 - h0/(1+x^2); random walk h/f^2 x^2/(1+x^2) =
     /// h (2 pi T)^2/(1+x^2); flicker from the tabulated universal shape. Otherwise the
-    /// transfer-function integral.
-    fn laser_var(&self, tau: f64) -> f64 {
+    /// transfer-function integral. `lp` is the low-passed white-FM Allan variance per
+    /// unit h0 at this tau (all low-passed terms are linear in their level).
+    fn laser_var(&self, tau: f64, lp: f64) -> f64 {
         let t = self.attack_s;
         if self.frequency_power_laws_only() {
             return self
@@ -79,22 +80,18 @@ impl Model {
                 .terms
                 .iter()
                 .map(|&(a, h)| match a {
-                    0 => (h / (2.0 * tau) - allan_variance_lowpass_white(h, tau, t)).max(0.0),
+                    0 => (h / (2.0 * tau) - h * lp).max(0.0),
                     -1 => allan_variance_flicker_highpass(h, tau, t),
-                    _ => allan_variance_lowpass_white(h * (2.0 * PI * t) * (2.0 * PI * t), tau, t),
+                    _ => h * (2.0 * PI * t) * (2.0 * PI * t) * lp,
                 })
                 .sum();
         }
         variance(&|f| self.spec.s_y(f) * self.highpass(f), tau, Variance::Allan, &self.features)
     }
-    fn projection_var(&self, tau: f64) -> f64 {
-        allan_variance_lowpass_white(self.h0_projection, tau, self.attack_s)
-    }
-    fn dick_var(&self, tau: f64) -> f64 {
-        allan_variance_lowpass_white(self.h0_dick, tau, self.attack_s)
-    }
+    /// Laser, projection and Dick parts of the locked laser's Allan variance at `tau`.
     fn parts(&self, tau: f64) -> [f64; 3] {
-        [self.laser_var(tau), self.projection_var(tau), self.dick_var(tau)]
+        let lp = allan_variance_lowpass_white(1.0, tau, self.attack_s);
+        [self.laser_var(tau, lp), self.h0_projection * lp, self.h0_dick * lp]
     }
     fn total(&self, tau: f64) -> f64 {
         libm::sqrt(self.parts(tau).iter().sum())
@@ -103,17 +100,19 @@ impl Model {
         let h0 = self.h0_projection + self.h0_dick;
         let t = self.attack_s;
         if self.frequency_power_laws_only() {
+            // Modified variance of low-passed white FM per unit h0, shared by every term.
+            let lp = mod_variance_lowpass_white(1.0, tau, t);
             let laser: f64 = self
                 .spec
                 .terms
                 .iter()
                 .map(|&(a, h)| match a {
-                    0 => (h / (4.0 * tau) - mod_variance_lowpass_white(h, tau, t)).max(0.0),
+                    0 => (h / (4.0 * tau) - h * lp).max(0.0),
                     -1 => mod_variance_flicker_highpass(h, tau, t),
-                    _ => mod_variance_lowpass_white(h * (2.0 * PI * t) * (2.0 * PI * t), tau, t),
+                    _ => h * (2.0 * PI * t) * (2.0 * PI * t) * lp,
                 })
                 .sum();
-            return libm::sqrt(laser + mod_variance_lowpass_white(h0, tau, t));
+            return libm::sqrt(laser + h0 * lp);
         }
         self.mod_total_numeric(tau)
     }
@@ -278,7 +277,12 @@ pub fn evaluate(d: &Design, opt: &EvalOptions) -> Result<Evaluation, InputError>
     let g: Vec<f64> = t_s.iter().map(|&t| gf.at(t.min(cycle * (1.0 - 1e-12))) / gmax).collect();
     let span = 3.0 * op.edge_hz;
     let detuning_hz: Vec<f64> = (0..n).map(|k| -span + 2.0 * span * k as f64 / (n - 1) as f64).collect();
-    let excitation: Vec<f64> = detuning_hz.iter().map(|&nu| probe.excitation(nu)).collect();
+    // An even line is computed on its upper half and mirrored.
+    let mut excitation = vec![0.0; n];
+    for k in (0..n).rev() {
+        let mirror = n - 1 - k;
+        excitation[k] = if probe.line_is_even() && mirror > k { excitation[mirror] } else { probe.excitation(detuning_hz[k]) };
+    }
     let measured = excitation.iter().map(|&p| ro.measured(p)).collect();
 
     Ok(Evaluation {
