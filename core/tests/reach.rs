@@ -231,3 +231,33 @@ fn one_part_in_1e18_is_about_one_centimetre() {
     assert_eq!(r.levelling.time_to_target_s, None);
     assert!(r.levelling.note.contains("stays above"));
 }
+
+#[test]
+fn probe_response_matches_brute_force_sampling_of_g() {
+    // Slow twin: R(f) = int g(t) exp(-2 pi i f t) dt / int g dt by the midpoint rule on
+    // 200 000 samples of g(t), for the demo designs at random modulation frequencies.
+    use clockwright_core::projection::{operating_point, Readout};
+    use clockwright_core::sensitivity::SensitivityFunction;
+    use clockwright_core::sequence::Probe;
+    let mut rng = Rng(4242);
+    for d in demo::designs() {
+        let probe = Probe::from_design(&d);
+        let op = operating_point(&probe, &Readout::from_design(&d), d.lock.operating_point).unwrap();
+        let gf = SensitivityFunction::new(&probe, op.detuning_hz).unwrap();
+        let n = 200_000;
+        let t = gf.cycle_s;
+        let samples: Vec<(f64, f64)> = (0..n).map(|k| (k as f64 + 0.5) / n as f64 * t).map(|x| (x, gf.at(x))).collect();
+        let g_int: f64 = samples.iter().map(|s| s.1).sum();
+        for _ in 0..4 {
+            let f = rng.log_uniform(1e-3, 5.0) / t;
+            let got = probe_response(&gf, f);
+            let (mut re, mut im) = (0.0, 0.0);
+            for &(x, g) in &samples {
+                re += g * (2.0 * PI * f * x).cos();
+                im -= g * (2.0 * PI * f * x).sin();
+            }
+            let (re, im) = (re / g_int, im / g_int);
+            assert!((got.re - re).abs() < 1e-6 && (got.im - im).abs() < 1e-6, "{} f={f}: {got} vs {re} {im}", d.name);
+        }
+    }
+}
