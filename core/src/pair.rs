@@ -63,6 +63,8 @@ pub mod caps {
     /// Longest campaign from the start of the first session to the end of the last, s
     /// (about 100 years).
     pub const MAX_CAMPAIGN_S: f64 = 3.2e9;
+    /// Longest session, s (the longest averaging time the engine evaluates).
+    pub const MAX_SESSION_S: f64 = 1e9;
     /// Longest correlation-spectroscopy dark time, s.
     pub const MAX_DARK_TIME_S: f64 = 1e5;
     /// Shortest correlation-spectroscopy dark time, s.
@@ -351,7 +353,7 @@ impl PairDocument {
         if k.sessions == 0 || k.sessions > caps::MAX_SESSIONS {
             c.push("pair.campaign.sessions", k.sessions.to_string(), format!("must be a whole number from 1 to {}", caps::MAX_SESSIONS));
         }
-        if c.range("pair.campaign.session_length_s", k.session_length_s, 0.0, caps::MAX_CAMPAIGN_S, "s") && designs_ok {
+        if c.range("pair.campaign.session_length_s", k.session_length_s, 0.0, caps::MAX_SESSION_S, "s") && designs_ok {
             let cycle = self.comparison_cycle_s();
             if cycle.is_finite() && k.session_length_s < cycle {
                 c.push(
@@ -672,7 +674,8 @@ fn differential_dick(ga: &SensitivityFunction, gb: &SensitivityFunction, spec: &
 
 fn log_grid(a: f64, b: f64, n: usize) -> Vec<f64> {
     let (la, lb) = (libm::log(a), libm::log(b));
-    (0..n).map(|k| libm::exp(la + (lb - la) * k as f64 / (n - 1) as f64)).collect()
+    // The ends exactly a and b (exp(ln b) may round above a cap).
+    (0..n).map(|k| if k == 0 { a } else if k == n - 1 { b } else { libm::exp(la + (lb - la) * k as f64 / (n - 1) as f64) }).collect()
 }
 
 /// Evaluates the ratio of a pair: validates the document, then the ratio's Allan and

@@ -83,8 +83,9 @@ pub const MAX_MASS_POINTS: usize = 2000;
 pub const MAX_LEVELLING_POINTS: usize = 400;
 /// Longest averaging time searched for the levelling target, s.
 pub const MAX_LEVELLING_TAU_S: f64 = 1e9;
-/// Most sub-panels of the probe-response integral over one cycle.
-pub const MAX_RESPONSE_PANELS: usize = 200_000;
+/// Most sub-panels of the probe-response integral over one cycle (beyond it, modulations
+/// much faster than the probe are resolved more coarsely; their response is small).
+pub const MAX_RESPONSE_PANELS: usize = 20_000;
 
 /// Options of the reach.
 #[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
@@ -314,8 +315,9 @@ pub fn probe_response(gf: &crate::sensitivity::SensitivityFunction, f_hz: f64) -
         return Complex64::new(0.0, 0.0);
     }
     let total_len: f64 = gf.pieces.iter().filter(|p| !p.coef.is_empty()).map(|p| p.h).sum();
-    // Sub-panels: about eight per period of the modulation, within the cap.
-    let per_s = (8.0 * f_hz.abs()).min(MAX_RESPONSE_PANELS as f64 / total_len.max(1e-300));
+    // Sub-panels: four per period of the modulation (8-point Gauss-Legendre on a quarter
+    // period is exact to rounding), within the cap.
+    let per_s = (4.0 * f_hz.abs()).min(MAX_RESPONSE_PANELS as f64 / total_len.max(1e-300));
     let mut acc = Complex64::new(0.0, 0.0);
     for p in gf.pieces.iter().filter(|p| !p.coef.is_empty()) {
         let n = (libm::ceil(per_s * p.h) as usize).max(1);
@@ -335,7 +337,8 @@ pub fn probe_response(gf: &crate::sensitivity::SensitivityFunction, f_hz: f64) -
 
 fn log_grid(a: f64, b: f64, n: usize) -> Vec<f64> {
     let (la, lb) = (libm::log(a), libm::log(b));
-    (0..n).map(|k| libm::exp(la + (lb - la) * k as f64 / (n - 1) as f64)).collect()
+    // The ends exactly a and b (exp(ln b) may round above a cap).
+    (0..n).map(|k| if k == 0 { a } else if k == n - 1 { b } else { libm::exp(la + (lb - la) * k as f64 / (n - 1) as f64) }).collect()
 }
 
 /// What the pair reaches over its campaign: drift bound, dark-matter reach and levelling.
