@@ -26,21 +26,13 @@ fn time(label: &str, f: &dyn Fn()) {
 
 fn main() {
     let p = demo::pairs().remove(0);
-    // The shared-laser variant: stretch b's cooling so both cycles are equal.
+    // The shared-laser variant: lengthen the shorter cycle's cooling so both cycles are equal.
     let mut q: PairDocument = p.clone();
     q.comparison = Comparison::SharedLaser;
     let extra = q.a.cycle_time_s() - q.b.cycle_time_s();
-    let (first, rest) = (q.b.sequence.segments[0].clone(), q.a.cycle_time_s());
-    if let Segment::Dead { label, duration_s } = first {
-        q.b.sequence.segments[0] = Segment::Dead { label, duration_s: duration_s + extra };
-    }
-    if (q.b.cycle_time_s() - rest).abs() > 1e-9 {
-        // b's cycle is longer: stretch a's cooling instead.
-        q.b = p.b.clone();
-        let extra = q.b.cycle_time_s() - q.a.cycle_time_s();
-        if let Segment::Dead { label, duration_s } = q.a.sequence.segments[0].clone() {
-            q.a.sequence.segments[0] = Segment::Dead { label, duration_s: duration_s + extra };
-        }
+    let shorter = if extra > 0.0 { &mut q.b } else { &mut q.a };
+    if let Segment::Dead { label, duration_s } = shorter.sequence.segments[0].clone() {
+        shorter.sequence.segments[0] = Segment::Dead { label, duration_s: duration_s + extra.abs() };
     }
     let po = PairOptions::default();
     let ro = ReachOptions::default();

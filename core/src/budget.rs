@@ -194,12 +194,31 @@ fn build(d: &Design) -> Result<Built, InputError> {
 /// Largest number of averaging times [`locked_variances`] accepts at once.
 pub const MAX_LOCKED_TAUS: usize = 4096;
 
-/// The locked laser of design `d` at each averaging time of `taus_s` (s): its Allan
-/// variances by mechanism `[laser, projection, dick]` and its modified Allan variance (both
-/// fractional, squared), from the same model and numbers as [`evaluate`]. For putting
-/// several clocks on one grid of averaging times (comparisons of clocks).
-pub fn locked_variances(d: &Design, taus_s: &[f64]) -> Result<Vec<([f64; 3], f64)>, InputError> {
-    d.validate()?;
+/// A design's locked-laser model, prepared once (operating point, g(t), Dick sum) and then
+/// evaluated at any averaging time, with the same model and numbers as [`evaluate`]. For
+/// putting several clocks on one grid of averaging times (comparisons of clocks).
+pub struct LockedModel {
+    model: Model,
+}
+
+impl LockedModel {
+    /// Validates the design and prepares its model.
+    pub fn new(d: &Design) -> Result<LockedModel, InputError> {
+        d.validate()?;
+        Ok(LockedModel { model: build(d)?.model })
+    }
+
+    /// Allan variances by mechanism `[laser, projection, dick]` and the modified Allan
+    /// variance (fractional, squared) at `tau_s` (s, within (0, 1e9]; not checked here).
+    pub fn variances(&self, tau_s: f64) -> ([f64; 3], f64) {
+        let m = self.model.mod_total(tau_s);
+        (self.model.parts(tau_s), m * m)
+    }
+}
+
+/// Checks a list of averaging times: at most [`MAX_LOCKED_TAUS`], each finite, above 0 and
+/// at most [`caps::MAX_TAU_S`]; errors name `tau_s[i]`.
+pub fn check_taus(taus_s: &[f64]) -> Result<(), InputError> {
     if taus_s.len() > MAX_LOCKED_TAUS {
         return Err(InputError::single("tau_s", format!("{} averaging times", taus_s.len()), format!("at most {MAX_LOCKED_TAUS}")));
     }
@@ -208,14 +227,16 @@ pub fn locked_variances(d: &Design, taus_s: &[f64]) -> Result<Vec<([f64; 3], f64
             return Err(InputError::single(format!("tau_s[{i}]"), crate::error::show(t), format!("an averaging time must be a finite number above 0 and at most {:e} s", caps::MAX_TAU_S)));
         }
     }
-    let b = build(d)?;
-    Ok(taus_s
-        .iter()
-        .map(|&tau| {
-            let m = b.model.mod_total(tau);
-            (b.model.parts(tau), m * m)
-        })
-        .collect())
+    Ok(())
+}
+
+/// The locked laser of design `d` at each averaging time of `taus_s` (s): its Allan
+/// variances by mechanism `[laser, projection, dick]` and its modified Allan variance (both
+/// fractional, squared), from the same model and numbers as [`evaluate`].
+pub fn locked_variances(d: &Design, taus_s: &[f64]) -> Result<Vec<([f64; 3], f64)>, InputError> {
+    check_taus(taus_s)?;
+    let m = LockedModel::new(d)?;
+    Ok(taus_s.iter().map(|&tau| m.variances(tau)).collect())
 }
 
 /// Evaluates a design: validates it, then computes the whole budget.

@@ -44,7 +44,7 @@
 //! modified Allan variance is the white-FM value sigma^2/2 (continuous-averaging limit).
 
 use crate::allan::{allan_variance_power_law, variance, Variance};
-use crate::budget::locked_variances;
+use crate::budget::{check_taus, LockedModel};
 use crate::design::{caps as design_caps, Design, SCHEMA_VERSION};
 use crate::dick::{dick_sum, fourier_coefficients};
 use crate::error::{show, Checker, InputError, Problem};
@@ -456,7 +456,8 @@ pub struct Ratio {
 }
 
 enum RatioKind {
-    Independent,
+    /// The two locked-laser models.
+    Independent(Box<(LockedModel, LockedModel)>),
     /// White frequency-noise parts as sigma^2 at 1 s, with ids and labels.
     White(Vec<(&'static str, String, f64)>),
 }
@@ -492,7 +493,10 @@ impl Ratio {
             Comparison::IndependentLasers => {
                 let (ga, _) = gfs(&doc.a).map_err(|e| tag("a", e))?;
                 let (gb, _) = gfs(&doc.b).map_err(|e| tag("b", e))?;
-                Ok((Ratio { doc: doc.clone(), cycle_s, kind: RatioKind::Independent, link, sensitivity: Some((ga, gb)) }, None, None))
+                let ma = LockedModel::new(&doc.a).map_err(|e| tag("a", e))?;
+                let mb = LockedModel::new(&doc.b).map_err(|e| tag("b", e))?;
+                let kind = RatioKind::Independent(Box::new((ma, mb)));
+                Ok((Ratio { doc: doc.clone(), cycle_s, kind, link, sensitivity: Some((ga, gb)) }, None, None))
             }
             Comparison::SharedLaser => {
                 let (ga, pa) = gfs(&doc.a).map_err(|e| tag("a", e))?;
@@ -563,7 +567,7 @@ impl Ratio {
     /// Identifiers and labels of the parts, in the order of [`RatioPoint::parts`].
     pub fn part_ids(&self) -> Vec<(String, String)> {
         let mut out: Vec<(String, String)> = match &self.kind {
-            RatioKind::Independent => {
+            RatioKind::Independent(_) => {
                 let mut v = Vec::new();
                 for t in ["a", "b"] {
                     v.push((format!("{t}.laser"), format!("laser noise the servo of {t} leaves")));
@@ -582,33 +586,24 @@ impl Ratio {
 
     /// The ratio at each averaging time of `taus_s` (s; each within (0, 1e9]).
     pub fn at(&self, taus_s: &[f64]) -> Result<Vec<RatioPoint>, InputError> {
+        check_taus(taus_s)?;
         let mut out: Vec<RatioPoint> = match &self.kind {
-            RatioKind::Independent => {
-                let va = locked_variances(&self.doc.a, taus_s).map_err(|e| prefix("pair.a.", e))?;
-                let vb = locked_variances(&self.doc.b, taus_s).map_err(|e| prefix("pair.b.", e))?;
-                va.iter()
-                    .zip(&vb)
-                    .map(|((pa, ma), (pb, mb))| {
-                        let parts = vec![pa[0], pa[1], pa[2], pb[0], pb[1], pb[2]];
-                        RatioPoint { total: parts.iter().sum(), parts, modified: ma + mb }
-                    })
-                    .collect()
-            }
-            RatioKind::White(p) => {
-                for (i, &t) in taus_s.iter().enumerate() {
-                    if !t.is_finite() || t <= 0.0 || t > crate::budget::caps::MAX_TAU_S {
-                        return Err(InputError::single(format!("tau_s[{i}]"), show(t), "an averaging time must be a finite number above 0 and at most 1e9 s"));
-                    }
-                }
-                taus_s
-                    .iter()
-                    .map(|&tau| {
-                        let parts: Vec<f64> = p.iter().map(|(_, _, s2)| s2 / tau).collect();
-                        let total: f64 = parts.iter().sum();
-                        RatioPoint { parts, total, modified: total / 2.0 }
-                    })
-                    .collect()
-            }
+            RatioKind::Independent(m) => taus_s
+                .iter()
+                .map(|&tau| {
+                    let ((pa, ma), (pb, mb)) = (m.0.variances(tau), m.1.variances(tau));
+                    let parts = vec![pa[0], pa[1], pa[2], pb[0], pb[1], pb[2]];
+                    RatioPoint { total: parts.iter().sum(), parts, modified: ma + mb }
+                })
+                .collect(),
+            RatioKind::White(p) => taus_s
+                .iter()
+                .map(|&tau| {
+                    let parts: Vec<f64> = p.iter().map(|(_, _, s2)| s2 / tau).collect();
+                    let total: f64 = parts.iter().sum();
+                    RatioPoint { parts, total, modified: total / 2.0 }
+                })
+                .collect(),
         };
         if let Some(spec) = &self.link {
             let features = spec.breakpoints();
@@ -622,10 +617,6 @@ impl Ratio {
         }
         Ok(out)
     }
-}
-
-fn prefix(p: &str, e: InputError) -> InputError {
-    InputError { problems: e.problems.into_iter().map(|x| Problem { path: if x.path.starts_with("tau_s") { x.path } else { format!("{p}{}", x.path) }, ..x }).collect() }
 }
 
 /// Result of the differential Dick sum.
