@@ -17,7 +17,10 @@ pub mod noise;
 pub mod projection;
 pub mod result;
 pub mod sensitivity;
+pub mod pair;
+pub mod reach;
 pub mod sequence;
+pub mod species;
 pub mod synthesis;
 
 pub use budget::evaluate;
