@@ -95,7 +95,11 @@ pub fn normal_quantile(p: f64) -> f64 {
     for _ in 0..4 {
         // Halley's step on Phi(x) - p; the error is taken on the smaller tail for accuracy.
         let e = if x < 0.0 { normal_cdf(x) - p } else { (1.0 - p) - normal_cdf(-x) };
-        let u = e * libm::sqrt(2.0 * PI) * libm::exp(x * x / 2.0);
+        let pdf = libm::exp(-x * x / 2.0) / libm::sqrt(2.0 * PI);
+        if !(pdf > 0.0) {
+            break;
+        }
+        let u = e / pdf;
         x -= u / (1.0 + x * u / 2.0);
     }
     x
