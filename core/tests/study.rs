@@ -236,6 +236,16 @@ fn atom_count_sweep_follows_the_projection_limit() {
         let closed = 1.0 / (2.0 * PI * nu0 * tr) * (tc / n).sqrt();
         assert!(rel(v.unwrap(), closed) < 1e-6, "N {n}: {v:?} vs {closed}");
     }
+    // Nine points from 1 to 3 round to repeated whole numbers; each repeat reuses the
+    // evaluation of its twin and must equal evaluating that count directly.
+    let req = GridRequest { x: axis("atoms.count", 1.0, 3.0, 9, Spacing::Linear), ..req };
+    let r = sweep(&[d.clone()], &req).unwrap();
+    assert_eq!(r.x, vec![1.0, 1.0, 2.0, 2.0, 2.0, 2.0, 3.0, 3.0, 3.0]);
+    for (n, v) in r.x.iter().zip(&r.series[0].values) {
+        let mut dn = d.clone();
+        dn.atoms.count = *n as u64;
+        assert_eq!(*v, Output::Projection1s.evaluate(&dn).ok());
+    }
 }
 
 fn set_field(d: &mut Design, path: &str, x: f64) {

@@ -16,6 +16,7 @@ use crate::design::Design;
 use crate::error::{show, Checker, InputError};
 use serde::{Deserialize, Serialize};
 use serde_json::Value;
+use std::collections::HashMap;
 
 /// How the points of an axis are spread between `from` and `to`.
 #[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize, Deserialize, Default)]
@@ -157,6 +158,14 @@ impl AxisRun {
         }
         Ok(AxisRun { path, kinds, values, log: axis.spacing == Spacing::Log })
     }
+
+    /// The value written into design `d` at point `i` (rounded for whole-number fields).
+    fn set_value(&self, d: usize, i: usize) -> f64 {
+        match self.kinds[d] {
+            NumberKind::Whole => libm::round(self.values[i]),
+            NumberKind::Real => self.values[i],
+        }
+    }
 }
 
 /// A sweep or map in progress: evaluate it chunk by chunk with [`GridRun::advance`].
@@ -170,6 +179,8 @@ pub struct GridRun {
     next: usize,
     values: Vec<Vec<Option<f64>>>,
     holes: Vec<Vec<Hole>>,
+    /// The outcome of each (design, x bits, y bits) evaluated so far.
+    seen: HashMap<(usize, u64, u64), Result<f64, String>>,
 }
 
 impl GridRun {
@@ -227,6 +238,7 @@ impl GridRun {
             next: 0,
             values: designs.iter().map(|_| Vec::with_capacity(per_design)).collect(),
             holes: designs.iter().map(|_| Vec::new()).collect(),
+            seen: HashMap::new(),
         })
     }
 
@@ -264,7 +276,17 @@ impl GridRun {
             if let Some(y) = &self.y {
                 changes.push((&y.path, y.kinds[d], y.values[iy]));
             }
-            let value = with_values(&self.bases[d], &changes).and_then(|design| self.output.evaluate(&design));
+            // Whole-number fields repeat values along an axis; identical designs give
+            // identical outputs, so a repeated point reuses the earlier one.
+            let key = (d, self.x.set_value(d, ix).to_bits(), self.y.as_ref().map(|y| y.set_value(d, iy).to_bits()).unwrap_or(0));
+            let value = match self.seen.get(&key) {
+                Some(v) => v.clone(),
+                None => {
+                    let v = with_values(&self.bases[d], &changes).and_then(|design| self.output.evaluate(&design));
+                    self.seen.insert(key, v.clone());
+                    v
+                }
+            };
             match value {
                 Ok(v) => self.values[d].push(Some(v)),
                 Err(reason) => {

@@ -1,0 +1,75 @@
+//! Benchmark of the studies, native, one thread: a 100-point sweep of the four demo designs
+//! (400 evaluations) and a 50x50 map of one design (2500 evaluations with contours), plus
+//! the optimum probe time of each demo design and a 200-sample uncertainty band.
+//! Prints the median and spread of the wall time.
+//!
+//! Run: `cargo bench -p clockwright-core --bench study`
+
+use clockwright_core::demo;
+use clockwright_core::study::sweep::{Axis, Spacing};
+use clockwright_core::study::*;
+use clockwright_core::study::bands::{Distribution, Uncertain};
+use std::hint::black_box;
+use std::time::Instant;
+
+fn time(label: &str, runs: usize, mut f: impl FnMut()) {
+    f();
+    let mut samples: Vec<f64> = (0..runs)
+        .map(|_| {
+            let t0 = Instant::now();
+            f();
+            t0.elapsed().as_secs_f64()
+        })
+        .collect();
+    samples.sort_by(|a, b| a.total_cmp(b));
+    let n = samples.len();
+    println!("{label:<58} median {:>8.1} ms  (min {:>8.1}, max {:>8.1})", samples[n / 2] * 1e3, samples[0] * 1e3, samples[n - 1] * 1e3);
+}
+
+fn main() {
+    let designs = demo::designs();
+    println!("studies, native, single thread");
+    let sweep_req = GridRequest {
+        x: Axis { path: "atoms.count".into(), from: 1.0, to: 20.0, points: 100, spacing: Spacing::Linear },
+        y: None,
+        output: Output::SigmaAt { tau_s: 1000.0 },
+        levels: None,
+    };
+    time("sweep: 4 designs x 100 points of atoms.count, sigma at 1000 s", 9, || {
+        black_box(sweep(black_box(&designs), &sweep_req).unwrap());
+    });
+    let probe = GridRequest {
+        x: Axis { path: "sequence.segments[2].duration_s".into(), from: 0.01, to: 1.0, points: 100, spacing: Spacing::Log },
+        ..sweep_req.clone()
+    };
+    time("sweep: 4 designs x 100 points of segments[2], sigma at 1000 s", 9, || {
+        black_box(sweep(black_box(&designs), &probe).unwrap());
+    });
+    let map_req = GridRequest {
+        x: Axis { path: "atoms.count".into(), from: 1.0, to: 50.0, points: 50, spacing: Spacing::Linear },
+        y: Some(Axis { path: "sequence.segments[3].duration_s".into(), from: 0.01, to: 1.0, points: 50, spacing: Spacing::Log }),
+        output: Output::TimeToTarget { target: 1e-18 },
+        levels: None,
+    };
+    let one = &designs[1..2];
+    time("map: 50 x 50 of atoms.count and free time, time to 1e-18", 3, || {
+        black_box(map(black_box(one), &map_req).unwrap());
+    });
+    let map_sigma = GridRequest { output: Output::SigmaAt { tau_s: 1000.0 }, ..map_req.clone() };
+    time("map: 50 x 50 of atoms.count and free time, sigma at 1000 s", 3, || {
+        black_box(map(black_box(one), &map_sigma).unwrap());
+    });
+    for d in &designs {
+        let o = optimum(d, &OptimumRequest::at(1000.0)).unwrap();
+        time(&format!("optimum at 1000 s: {} ({} evaluations)", d.name, o.evaluations), 5, || {
+            black_box(optimum(black_box(d), &OptimumRequest::at(1000.0)).unwrap());
+        });
+    }
+    let band = BandRequest::new(vec![
+        Uncertain { path: "laser.noise[1].sigma_y".into(), distribution: Distribution::LogNormal { median: 5e-17, sigma_ln: 0.5 } },
+        Uncertain { path: "atoms.count".into(), distribution: Distribution::Uniform { low: 1.0, high: 4.0 } },
+    ]);
+    time("bands: 200 Latin hypercube samples of the single ion", 3, || {
+        black_box(bands(black_box(&designs[0]), &band).unwrap());
+    });
+}
