@@ -54,10 +54,13 @@ pub enum Output {
     /// Allan deviation of the locked laser at `tau_s` (s); `tau_s` must exceed one cycle.
     SigmaAt { tau_s: f64 },
     /// White-frequency level of the locked laser extrapolated to 1 s (fractional).
+    #[serde(rename = "sigma_1s_equivalent")]
     Sigma1sEquivalent,
     /// Projection-noise Allan deviation at 1 s (fractional).
+    #[serde(rename = "projection_1s")]
     Projection1s,
     /// Dick-effect Allan deviation at 1 s (fractional).
+    #[serde(rename = "dick_1s")]
     Dick1s,
     /// Share of the Dick effect in the 1-s-equivalent variance, sigma_Dick^2 / (sigma_QPN^2 + sigma_Dick^2), 0 to 1.
     DickShare,
@@ -174,6 +177,39 @@ impl SplitMix64 {
     pub fn below(&mut self, n: usize) -> usize {
         ((self.open01() * n as f64) as usize).min(n.saturating_sub(1))
     }
+}
+
+/// Reads a study request (or any part of one) from JSON; an error names the field path
+/// inside the request, prefixed by `what`.
+pub fn from_value<T: serde::de::DeserializeOwned>(value: serde_json::Value, what: &str) -> Result<T, InputError> {
+    serde_path_to_error::deserialize(value).map_err(|e| {
+        let inner = e.path().to_string();
+        let path = if inner == "." { if what.is_empty() { "(request)".to_string() } else { what.to_string() } } else if what.is_empty() { inner } else { format!("{what}.{inner}") };
+        InputError::single(path, "", format!("does not follow the study schema: {}", e.inner()))
+    })
+}
+
+/// Reads a list of designs, each through the design schema; problems are prefixed with
+/// `designs[i].`.
+pub fn designs_from_value(value: serde_json::Value) -> Result<Vec<Design>, InputError> {
+    let serde_json::Value::Array(items) = value else {
+        return Err(InputError::single("designs", "", "must be a list of design documents"));
+    };
+    if items.is_empty() || items.len() > caps::MAX_DESIGNS {
+        return Err(InputError::single("designs", format!("{} designs", items.len()), format!("a study takes 1 to {} designs", caps::MAX_DESIGNS)));
+    }
+    items
+        .into_iter()
+        .enumerate()
+        .map(|(i, v)| {
+            Design::from_value(v).map_err(|mut e| {
+                for p in &mut e.problems {
+                    p.path = format!("designs[{i}].{}", p.path);
+                }
+                e
+            })
+        })
+        .collect()
 }
 
 /// Checks the list of designs of a study: 1 to [`caps::MAX_DESIGNS`].
