@@ -35,14 +35,18 @@ fn main() {
         output: Output::SigmaAt { tau_s: 1000.0 },
         levels: None,
     };
-    time("sweep: 4 designs x 100 points of atoms.count, sigma at 1000 s", 9, || {
+    time("sweep: 4 designs x 100 points, atoms.count 1 to 20 (20 distinct)", 9, || {
         black_box(sweep(black_box(&designs), &sweep_req).unwrap());
+    });
+    let distinct = GridRequest { x: Axis { path: "atoms.count".into(), from: 1.0, to: 100.0, points: 100, spacing: Spacing::Linear }, ..sweep_req.clone() };
+    time("sweep: 4 designs x 100 points, atoms.count 1 to 100", 9, || {
+        black_box(sweep(black_box(&designs), &distinct).unwrap());
     });
     let probe = GridRequest {
         x: Axis { path: "sequence.segments[2].duration_s".into(), from: 0.01, to: 1.0, points: 100, spacing: Spacing::Log },
         ..sweep_req.clone()
     };
-    time("sweep: 4 designs x 100 points of segments[2], sigma at 1000 s", 9, || {
+    time("sweep: 4 designs x 100 points, segments[2] 0.01 to 1 s (log)", 9, || {
         black_box(sweep(black_box(&designs), &probe).unwrap());
     });
     let map_req = GridRequest {

@@ -305,6 +305,11 @@ fn invalid_points_are_holes_with_reasons_never_nan() {
     }
     let text = serde_json::to_string(&r).unwrap();
     assert!(!text.contains("NaN") && !text.contains("inf"), "{text}");
+    // Ends near the largest numbers: the axis stays finite and the points are holes.
+    let req = GridRequest { x: axis("lock.attack_time_s", -1e300, 1e300, 3, Spacing::Linear), y: None, output: Output::Sigma1sEquivalent, levels: None };
+    let r = sweep(&[demo::designs()[0].clone()], &req).unwrap();
+    assert_eq!(r.x, vec![-1e300, 0.0, 1e300]);
+    assert_eq!(r.series[0].holes.len(), 3);
     // A target never reached is a hole with the reason.
     let req = GridRequest { x: axis("laser.noise[0].sigma_y_1s", 1e-17, 1e-14, 4, Spacing::Log), y: None, output: Output::TimeToTarget { target: 1e-19 }, levels: None };
     let r = sweep(&[d], &req).unwrap();

@@ -11,7 +11,9 @@
 //! Statistician 50, 361 (1996)), per averaging time on sigma_y(tau) and per scalar of the
 //! evaluation table. A sample whose design is invalid is left out and listed with the
 //! reason; a target not reached counts as an infinite time, so a quantile that falls there
-//! is reported as `None` (not reached).
+//! is reported as `None` (not reached). A sample's curve starts at its own cycle time, so
+//! when durations are uncertain the shortest averaging times of the band are taken over the
+//! samples that reach them, and left empty where fewer than half of the valid samples do.
 
 use super::caps::{MAX_QUANTILES, MAX_SAMPLES, MAX_UNCERTAIN};
 use super::path::{with_values, FieldPath, NumberKind};

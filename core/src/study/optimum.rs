@@ -121,6 +121,20 @@ pub enum RangeEnd {
     CutoffCap,
 }
 
+impl RangeEnd {
+    /// What set the end, as words for a sentence.
+    pub fn describe(self) -> &'static str {
+        match self {
+            RangeEnd::Requested => "the end of the requested range",
+            RangeEnd::ServoAttackTime => "the servo attack time (a cycle may not outlast it)",
+            RangeEnd::AveragingTime => "the averaging time (a cycle must be shorter)",
+            RangeEnd::LaserCoherence => "the laser-coherence limit (1 rad RMS phase over the probe)",
+            RangeEnd::SegmentCap => "the longest allowed segment",
+            RangeEnd::CutoffCap => "the cap on the laser cut-off times the cycle",
+        }
+    }
+}
+
 /// The mechanism that sets the optimum.
 #[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize, Deserialize)]
 #[serde(rename_all = "snake_case")]
@@ -410,7 +424,7 @@ pub fn optimum(design: &Design, req: &OptimumRequest) -> Result<Optimum, InputEr
     for &r in &rounds_list {
         let (range, end) = search.range(r, coherence);
         if !(range[1] > range[0]) {
-            first_problem.get_or_insert_with(|| format!("with {r} detection rounds no probe time from {} s to {} s keeps the design valid ({end:?})", show(range[0]), show(range[1])));
+            first_problem.get_or_insert_with(|| format!("with {r} detection rounds the longest probe time, {} s, set by {}, is below the shortest, {} s", show(range[1]), end.describe(), show(range[0])));
             continue;
         }
         let (t, v, scan) = search.run(r, range);
@@ -466,14 +480,7 @@ pub fn optimum(design: &Design, req: &OptimumRequest) -> Result<Optimum, InputEr
         ProbeShape::RamseyFreeTime => "free-evolution time",
         ProbeShape::RabiPulseTime => "pulse time",
     };
-    let end_text = match range_end {
-        RangeEnd::Requested => "the end of the requested range",
-        RangeEnd::ServoAttackTime => "the servo attack time (a cycle may not outlast it)",
-        RangeEnd::AveragingTime => "the averaging time (a cycle must be shorter)",
-        RangeEnd::LaserCoherence => "the laser-coherence limit (1 rad RMS phase over the probe)",
-        RangeEnd::SegmentCap => "the longest allowed segment",
-        RangeEnd::CutoffCap => "the cap on the laser cut-off times the cycle",
-    };
+    let end_text = range_end.describe();
     let explanation = match mechanism {
         OptimumMechanism::ProjectionNoise if at_range_end => format!("Projection noise keeps falling with longer probes: the best {what} is the longest allowed, set by {end_text}."),
         OptimumMechanism::DeadTime => format!("The Dick effect from the dead time keeps falling as longer probes fill the cycle: the best {what} is the longest allowed, set by {end_text}."),

@@ -71,7 +71,8 @@ impl Axis {
                     return self.to;
                 }
                 match self.spacing {
-                    Spacing::Linear => self.from + (self.to - self.from) * s,
+                    // Weighted ends: no overflow even for ends of opposite sign near the largest numbers.
+                    Spacing::Linear => self.from * (1.0 - s) + self.to * s,
                     Spacing::Log => libm::exp(libm::log(self.from) + (libm::log(self.to) - libm::log(self.from)) * s),
                 }
             })
