@@ -358,7 +358,7 @@ impl BandRun {
         while self.next < end {
             let i = self.next;
             let changes: Vec<(&FieldPath, NumberKind, f64)> = self.paths.iter().zip(&self.inputs[i]).map(|((p, k), &x)| (p, *k, x)).collect();
-            let r = with_values(&self.base, &changes).and_then(|d| crate::evaluate(&d, &self.req.options).map_err(|e| e.to_string()));
+            let r = with_values(&mut self.base, &changes).and_then(|d| crate::evaluate(&d, &self.req.options).map_err(|e| e.to_string()));
             match r {
                 Ok(e) => {
                     self.curves.push(self.nominal.curve.tau_s.iter().map(|&t| curve_at(&e.curve.tau_s, &e.curve.total, t)).collect());

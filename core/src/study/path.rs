@@ -9,6 +9,7 @@
 
 use crate::design::Design;
 use crate::error::{show, InputError};
+use serde::Deserialize;
 use serde_json::{Number, Value};
 
 /// Longest path text, characters.
@@ -143,16 +144,39 @@ impl FieldPath {
     }
 }
 
-/// A design with some fields set: `changes` are (path, kind, value). `Err` holds the reason
-/// in a sentence when the changed document is not a valid design.
-pub fn with_values(base: &Value, changes: &[(&FieldPath, NumberKind, f64)]) -> Result<Design, String> {
-    let mut v = base.clone();
+/// A design with some fields set: `changes` are (path, kind, value), written into `base`
+/// (the JSON form of a design of this schema version) and read back as a design; `base` is
+/// restored afterwards, so no copy of the document is made. `Err` holds the reason in a
+/// sentence when the changed document does not fit the schema. The design is not validated
+/// here: [`crate::evaluate`] validates it and names any field out of range.
+pub fn with_values(base: &mut Value, changes: &[(&FieldPath, NumberKind, f64)]) -> Result<Design, String> {
+    let mut saved = Vec::with_capacity(changes.len());
+    let mut outcome = Ok(());
     for &(p, kind, x) in changes {
-        p.write(&mut v, x, kind)?;
+        match p.find(base) {
+            Some(old) => saved.push((p, old.clone())),
+            None => {
+                outcome = Err(format!("{}: the design has no such field", p.text));
+                break;
+            }
+        }
+        if let Err(e) = p.write(base, x, kind) {
+            outcome = Err(e);
+            break;
+        }
     }
-    let d = Design::from_value(v).map_err(|e| e.to_string())?;
-    d.validate().map_err(|e| e.to_string())?;
-    Ok(d)
+    let result = outcome.and_then(|()| {
+        Design::deserialize(&*base).map_err(|e| {
+            let list: Vec<String> = changes.iter().map(|(p, _, x)| format!("{} = {}", p.text, show(*x))).collect();
+            format!("{}; the design does not fit its schema: {e}", list.join(", "))
+        })
+    });
+    for (p, old) in saved.into_iter().rev() {
+        if let Some(slot) = p.find_mut(base) {
+            *slot = old;
+        }
+    }
+    result
 }
 
 fn describe(v: &Value) -> String {

@@ -283,7 +283,7 @@ impl GridRun {
             let value = match self.seen.get(&key) {
                 Some(v) => v.clone(),
                 None => {
-                    let v = with_values(&self.bases[d], &changes).and_then(|design| self.output.evaluate(&design));
+                    let v = with_values(&mut self.bases[d], &changes).and_then(|design| self.output.evaluate(&design));
                     self.seen.insert(key, v.clone());
                     v
                 }
