@@ -1,7 +1,7 @@
 //! Benchmark of the studies, native, one thread: a 100-point sweep of the four demo designs
 //! (400 evaluations) and a 50x50 map of one design (2500 evaluations with contours), plus
 //! the optimum probe time of each demo design and a 200-sample uncertainty band.
-//! Prints the median and spread of the wall time.
+//! Prints the median and spread of the wall time, and the median time on a CPU.
 //!
 //! Run: `cargo bench -p clockwright-core --bench study`
 
@@ -12,18 +12,31 @@ use clockwright_core::study::bands::{Distribution, Uncertain};
 use std::hint::black_box;
 use std::time::Instant;
 
+/// Time this thread spent on a CPU, s, from Linux's schedstat (None elsewhere): on a
+/// shared machine it is steadier than the wall time, but only good to about one scheduler
+/// tick (a few ms), so read it for the longer runs.
+fn cpu_s() -> Option<f64> {
+    let text = std::fs::read_to_string("/proc/thread-self/schedstat").ok()?;
+    text.split_whitespace().next()?.parse::<f64>().ok().map(|ns| ns * 1e-9)
+}
+
 fn time(label: &str, runs: usize, mut f: impl FnMut()) {
     f();
-    let mut samples: Vec<f64> = (0..runs)
-        .map(|_| {
-            let t0 = Instant::now();
-            f();
-            t0.elapsed().as_secs_f64()
-        })
-        .collect();
-    samples.sort_by(|a, b| a.total_cmp(b));
-    let n = samples.len();
-    println!("{label:<58} median {:>8.1} ms  (min {:>8.1}, max {:>8.1})", samples[n / 2] * 1e3, samples[0] * 1e3, samples[n - 1] * 1e3);
+    let mut wall = Vec::new();
+    let mut cpu = Vec::new();
+    for _ in 0..runs {
+        let (t0, c0) = (Instant::now(), cpu_s());
+        f();
+        wall.push(t0.elapsed().as_secs_f64());
+        if let (Some(a), Some(b)) = (c0, cpu_s()) {
+            cpu.push(b - a);
+        }
+    }
+    wall.sort_by(|a, b| a.total_cmp(b));
+    cpu.sort_by(|a, b| a.total_cmp(b));
+    let n = wall.len();
+    let on_cpu = if cpu.is_empty() { String::new() } else { format!("  on-CPU median {:>8.1} ms", cpu[cpu.len() / 2] * 1e3) };
+    println!("{label:<62} wall median {:>8.1} ms (min {:>8.1}, max {:>8.1}){on_cpu}", wall[n / 2] * 1e3, wall[0] * 1e3, wall[n - 1] * 1e3);
 }
 
 fn main() {
