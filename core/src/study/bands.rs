@@ -83,7 +83,8 @@ pub fn normal_cdf(x: f64) -> f64 {
 
 /// The standard normal quantile Phi^-1(p) for 0 < p < 1 (infinite at 0 and 1, NaN
 /// outside): the rational start of Applied Mathematics Series 55 (1964), eq. 26.2.23
-/// (error below 4.5e-4), refined by Halley steps on [`normal_cdf`] to full precision.
+/// (error below 4.5e-4), refined by third-order root-finding steps on [`normal_cdf`] to
+/// full precision.
 pub fn normal_quantile(p: f64) -> f64 {
     if !(p > 0.0 && p < 1.0) {
         return if p == 0.0 { f64::NEG_INFINITY } else if p == 1.0 { f64::INFINITY } else { f64::NAN };
@@ -95,7 +96,8 @@ pub fn normal_quantile(p: f64) -> f64 {
         x = -x;
     }
     for _ in 0..4 {
-        // Halley's step on Phi(x) - p; the error is taken on the smaller tail for accuracy.
+        // A third-order step on Phi(x) - p, x -= u / (1 + x u / 2) with u = (Phi(x) - p) / phi(x);
+        // the error is taken on the smaller tail for accuracy.
         let e = if x < 0.0 { normal_cdf(x) - p } else { (1.0 - p) - normal_cdf(-x) };
         let pdf = libm::exp(-x * x / 2.0) / libm::sqrt(2.0 * PI);
         if !(pdf > 0.0) {
