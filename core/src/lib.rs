@@ -21,6 +21,7 @@ pub mod pair;
 pub mod reach;
 pub mod sequence;
 pub mod species;
+pub mod study;
 pub mod synthesis;
 
 pub use budget::evaluate;

@@ -21,6 +21,7 @@ use serde_json::Value;
 use wasm_bindgen::prelude::*;
 
 mod pair;
+mod study;
 
 // ---------------------------------------------------------------------------------------
 // Conversion layer (native, tested).
