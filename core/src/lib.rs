@@ -18,6 +18,7 @@ pub mod projection;
 pub mod result;
 pub mod sensitivity;
 pub mod sequence;
+pub mod simulate;
 pub mod synthesis;
 
 pub use budget::evaluate;
