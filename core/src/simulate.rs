@@ -152,7 +152,7 @@ pub struct SimOptions {
     pub pulse_substeps: u32,
     /// Adds a second integrator to the servo (removes the lag of a linear drift).
     pub second_integrator: bool,
-    /// The free laser's noise and drift (false: a perfect laser, for checks).
+    /// The free laser's noise (false: a noiseless laser, for checks; its drift stays).
     pub laser_noise: bool,
     /// Frequency error of the laser at the start, Hz (a step for the servo to remove).
     pub initial_offset_hz: f64,
@@ -871,7 +871,7 @@ impl Simulation {
         let laser = if options.laser_noise {
             LaserStream::new(&spectrum, design.laser.drift_per_s, &layout, run_s, options.seed)?
         } else {
-            LaserStream::new(&Spectrum::power_laws(&[], spectrum.f_high), 0.0, &layout, run_s, options.seed)?
+            LaserStream::new(&Spectrum::power_laws(&[], spectrum.f_high), design.laser.drift_per_s, &layout, run_s, options.seed)?
         };
         // The analytic curve at tau = 2^j T_c, j = 0..K, for the octave taus of the run.
         let max_m = options.cycles / 2;
