@@ -20,6 +20,8 @@ use serde::Serialize;
 use serde_json::Value;
 use wasm_bindgen::prelude::*;
 
+mod simulate;
+
 // ---------------------------------------------------------------------------------------
 // Conversion layer (native, tested).
 // ---------------------------------------------------------------------------------------
@@ -84,7 +86,7 @@ pub fn parse_spectrum_csv(text: &str) -> Result<SpectrumTable, InputError> {
 
 /// Turns an input error into a JavaScript `Error` (message: one "path: value; allowed"
 /// line per problem; `problems`: the same as objects). The one error helper of the binding.
-fn js_error(e: &InputError) -> JsValue {
+pub(crate) fn js_error(e: &InputError) -> JsValue {
     let err = js_sys::Error::new(&e.to_string());
     if let Ok(problems) = e.problems.serialize(&serde_wasm_bindgen::Serializer::json_compatible()) {
         let _ = js_sys::Reflect::set(&err, &JsValue::from_str("problems"), &problems);
@@ -92,7 +94,7 @@ fn js_error(e: &InputError) -> JsValue {
     err.into()
 }
 
-fn from_js(value: JsValue, what: &str) -> Result<Value, JsValue> {
+pub(crate) fn from_js(value: JsValue, what: &str) -> Result<Value, JsValue> {
     if value.is_undefined() {
         return Ok(Value::Null);
     }
@@ -100,7 +102,7 @@ fn from_js(value: JsValue, what: &str) -> Result<Value, JsValue> {
         .map_err(|e| js_error(&InputError::single(what, "", format!("must be a plain JSON-like object: {e}"))))
 }
 
-fn to_js<T: Serialize>(value: &T) -> Result<JsValue, JsValue> {
+pub(crate) fn to_js<T: Serialize>(value: &T) -> Result<JsValue, JsValue> {
     value
         .serialize(&serde_wasm_bindgen::Serializer::json_compatible())
         .map_err(|e| js_error(&InputError::single("(result)", "", format!("could not be converted to JavaScript: {e}"))))
