@@ -111,6 +111,8 @@ pub const MAX_PULSE_SUBSTEPS: u32 = 256;
 pub const MAX_TOTAL_INTERVALS: u64 = 2_000_000_000;
 /// Longest simulated time, s (settling included).
 pub const MAX_RUN_S: f64 = 1e9;
+/// Largest seed (2^53 - 1, so that it survives a JavaScript number unchanged).
+pub const MAX_SEED: u64 = (1 << 53) - 1;
 /// Largest number of cycles whose details are kept in [`SimResult::trace`].
 pub const MAX_TRACE: u32 = 100_000;
 /// Most Ornstein-Uhlenbeck processes of one kind (frequency or phase) in the laser model.
@@ -147,7 +149,7 @@ pub struct SimOptions {
     pub cycles: u64,
     /// Cycles run before recording starts, so the lock has acquired; `None`: ten attack times.
     pub settle_cycles: Option<u64>,
-    /// Seed of the random streams.
+    /// Seed of the random streams, 0 to [`MAX_SEED`].
     pub seed: u64,
     /// Sub-steps per pulse, 1 to [`MAX_PULSE_SUBSTEPS`].
     pub pulse_substeps: u32,
@@ -857,11 +859,25 @@ fn fit_table(spectrum: &Spectrum, g: &[f64], delta: f64) -> (Vec<f64>, Vec<f64>,
 // ---------------------------------------------------------------------------------------
 // The closed loop
 
-/// One probe interval: the step (pulse or free) and its duration.
+/// One probe interval: the step (pulse or free), its duration and the drive's x and y
+/// components Omega cos(phi), Omega sin(phi) (rad/s), computed once.
 #[derive(Debug, Clone, Copy)]
 struct Interval {
     step: Step,
     len: f64,
+    drive: [f64; 2],
+}
+
+impl Interval {
+    /// The generator at laser detuning `det` (rad/s): the same as `Generator::new(&step,
+    /// det, gamma)` (sequence.rs) without recomputing the drive's cosine and sine.
+    #[inline]
+    fn generator(&self, det: f64, gamma: f64) -> Generator {
+        let [x, y] = self.drive;
+        let z = -(det + self.step.offset);
+        let h = gamma / 2.0;
+        Generator { a: [[-h, -z, y], [z, -h, -x], [-y, x, -gamma]], gamma, axis: [x, y, z] }
+    }
 }
 
 /// A running simulation; advance it in chunks, then [`Simulation::finish`].
@@ -917,6 +933,9 @@ fn check_options(o: &SimOptions) -> Result<(), InputError> {
     if o.pulse_substeps < 1 || o.pulse_substeps > MAX_PULSE_SUBSTEPS {
         c.push("options.pulse_substeps", o.pulse_substeps.to_string(), format!("must be a whole number from 1 to {MAX_PULSE_SUBSTEPS}"));
     }
+    if o.seed > MAX_SEED {
+        c.push("options.seed", o.seed.to_string(), format!("must be a whole number from 0 to {MAX_SEED} (exact in JavaScript)"));
+    }
     c.range("options.initial_offset_hz", o.initial_offset_hz, -1e9, 1e9, "Hz");
     c.range("options.confidence", o.confidence, crate::estimate::CONFIDENCE_RANGE.0, crate::estimate::CONFIDENCE_RANGE.1, "");
     if o.trace_cycles > MAX_TRACE {
@@ -944,8 +963,9 @@ impl Simulation {
         for s in &probe.steps {
             let n = if s.omega != 0.0 { subs } else { 1 };
             let len = s.duration_s / n as f64;
+            let drive = [s.omega * libm::cos(s.phase), s.omega * libm::sin(s.phase)];
             for _ in 0..n {
-                intervals.push(Interval { step: *s, len });
+                intervals.push(Interval { step: *s, len, drive });
             }
         }
         let probe_s = probe.duration_s();
@@ -1060,7 +1080,7 @@ impl Simulation {
             let err_hz = self.nu0 * j / iv.len + c;
             err_cycles += err_hz * iv.len;
             let det = 2.0 * PI * (self.side * self.op.detuning_hz + err_hz) * self.detuning_factor;
-            r = Generator::new(&iv.step, det, self.gamma).propagator(iv.len).apply(r);
+            r = iv.generator(det, self.gamma).propagator(iv.len).apply(r);
         }
         let p = ((r[2] + 1.0) / 2.0).clamp(0.0, 1.0);
         let pm = self.ro.measured(p).clamp(0.0, 1.0);
@@ -1135,9 +1155,10 @@ impl Simulation {
         for p in &locked.points {
             let j = 63 - p.m.leading_zeros() as usize;
             let Some(&a) = self.analytic.total.get(j) else { continue };
-            let lo_q = crate::estimate::chi2_quantile((1.0 + FLAG_CONFIDENCE) / 2.0, p.edf)?;
-            let hi_q = crate::estimate::chi2_quantile((1.0 - FLAG_CONFIDENCE) / 2.0, p.edf)?;
-            let (ci_low, ci_high) = (p.deviation * libm::sqrt(p.edf / lo_q), p.deviation * libm::sqrt(p.edf / hi_q));
+            let edf = p.edf.clamp(crate::estimate::DOF_RANGE.0, crate::estimate::DOF_RANGE.1);
+            let lo_q = crate::estimate::chi2_quantile((1.0 + FLAG_CONFIDENCE) / 2.0, edf)?;
+            let hi_q = crate::estimate::chi2_quantile((1.0 - FLAG_CONFIDENCE) / 2.0, edf)?;
+            let (ci_low, ci_high) = (p.deviation * libm::sqrt(edf / lo_q), p.deviation * libm::sqrt(edf / hi_q));
             if a < ci_low / (1.0 + MODEL_TOLERANCE) || a > ci_high * (1.0 + MODEL_TOLERANCE) {
                 let reason = if hops {
                     format!(

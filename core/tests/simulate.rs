@@ -277,6 +277,7 @@ fn bad_options_and_early_finish_are_clear_errors() {
     assert_eq!(e.problems[0].path, "options.cycles");
     let e = err(SimOptions { cycles: u64::MAX, ..Default::default() });
     assert!(e.problems[0].allowed.contains(&MAX_CYCLES.to_string()), "{e}");
+    assert_eq!(err(SimOptions { seed: u64::MAX, ..Default::default() }).problems[0].path, "options.seed");
     let e = err(SimOptions { pulse_substeps: 0, ..Default::default() });
     assert_eq!(e.problems[0].path, "options.pulse_substeps");
     let e = err(SimOptions { initial_offset_hz: f64::NAN, confidence: 2.0, ..Default::default() });
