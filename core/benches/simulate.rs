@@ -14,7 +14,7 @@ use clockwright_core::simulate::{SimOptions, Simulation};
 use std::time::Instant;
 
 fn rate(d: &Design, substeps: u32) -> f64 {
-    let cycles = 2_000_000u64;
+    let cycles = 1_000_000u64;
     let o = SimOptions { cycles, settle_cycles: Some(0), pulse_substeps: substeps, ..Default::default() };
     let mut best: f64 = 0.0;
     for _ in 0..3 {
@@ -37,7 +37,7 @@ fn main() {
     let (before, after): (Vec<Segment>, Vec<Segment>) = segs.into_iter().partition(|s| !matches!(s, Segment::Dead { label: clockwright_core::design::DeadLabel::Detection, .. }));
     ramsey.sequence.segments = before.into_iter().chain(probe).chain(after).collect();
     ramsey.validate().unwrap();
-    println!("simulated interrogation cycles per second, one thread (best of 3 runs of 2e6 cycles)");
+    println!("simulated interrogation cycles per second, one thread (best of 3 runs of 1e6 cycles)");
     for subs in [1, 4] {
         println!("{:<46} {} sub-step(s) per pulse: {:>10.3e} cycles/s", ramsey.name, subs, rate(&ramsey, subs));
     }
