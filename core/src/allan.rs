@@ -233,15 +233,22 @@ fn shape_at(table: &[f64], c: f64) -> f64 {
         return libm::exp(table[n - 1] + (table[n - 1] - table[n - 2]) * (x - (n - 1) as f64));
     }
     let first = (libm::floor(x) as usize).saturating_sub(2).min(n - 6);
+    // Six-point Lagrange interpolation on unit-spaced nodes: the weight of node i is
+    // prod_{j != i} (u - j) / prod_{j != i} (i - j), with the constant denominators
+    // 1/prod_{j != i}(i - j) = (-1)^(5-i) / (i! (5-i)!) and the numerators from prefix
+    // and suffix products.
+    const INV_DENOM: [f64; 6] = [-1.0 / 120.0, 1.0 / 24.0, -1.0 / 12.0, 1.0 / 12.0, -1.0 / 24.0, 1.0 / 120.0];
+    let u = x - first as f64;
+    let d = [u, u - 1.0, u - 2.0, u - 3.0, u - 4.0, u - 5.0];
+    let mut prefix = [1.0; 6];
+    for i in 1..6 {
+        prefix[i] = prefix[i - 1] * d[i - 1];
+    }
     let mut v = 0.0;
-    for i in first..first + 6 {
-        let mut w = 1.0;
-        for j in first..first + 6 {
-            if j != i {
-                w *= (x - j as f64) / (i as f64 - j as f64);
-            }
-        }
-        v += w * table[i];
+    let mut suffix = 1.0;
+    for i in (0..6).rev() {
+        v += prefix[i] * suffix * INV_DENOM[i] * table[first + i];
+        suffix *= d[i];
     }
     libm::exp(v)
 }

@@ -70,8 +70,9 @@ impl Model {
     /// Laser noise left by the servo: |1 - H|^2 S_laser. For frequency-noise power laws:
     /// white FM h0 x^2/(1+x^2) = h0 - h0/(1+x^2); random walk h/f^2 x^2/(1+x^2) =
     /// h (2 pi T)^2/(1+x^2); flicker from the tabulated universal shape. Otherwise the
-    /// transfer-function integral.
-    fn laser_var(&self, tau: f64) -> f64 {
+    /// transfer-function integral. `lp` is the low-passed white-FM Allan variance per
+    /// unit h0 at this tau (all low-passed terms are linear in their level).
+    fn laser_var(&self, tau: f64, lp: f64) -> f64 {
         let t = self.attack_s;
         if self.frequency_power_laws_only() {
             return self
@@ -79,22 +80,18 @@ impl Model {
                 .terms
                 .iter()
                 .map(|&(a, h)| match a {
-                    0 => (h / (2.0 * tau) - allan_variance_lowpass_white(h, tau, t)).max(0.0),
+                    0 => (h / (2.0 * tau) - h * lp).max(0.0),
                     -1 => allan_variance_flicker_highpass(h, tau, t),
-                    _ => allan_variance_lowpass_white(h * (2.0 * PI * t) * (2.0 * PI * t), tau, t),
+                    _ => h * (2.0 * PI * t) * (2.0 * PI * t) * lp,
                 })
                 .sum();
         }
         variance(&|f| self.spec.s_y(f) * self.highpass(f), tau, Variance::Allan, &self.features)
     }
-    fn projection_var(&self, tau: f64) -> f64 {
-        allan_variance_lowpass_white(self.h0_projection, tau, self.attack_s)
-    }
-    fn dick_var(&self, tau: f64) -> f64 {
-        allan_variance_lowpass_white(self.h0_dick, tau, self.attack_s)
-    }
+    /// Laser, projection and Dick parts of the locked laser's Allan variance at `tau`.
     fn parts(&self, tau: f64) -> [f64; 3] {
-        [self.laser_var(tau), self.projection_var(tau), self.dick_var(tau)]
+        let lp = allan_variance_lowpass_white(1.0, tau, self.attack_s);
+        [self.laser_var(tau, lp), self.h0_projection * lp, self.h0_dick * lp]
     }
     fn total(&self, tau: f64) -> f64 {
         libm::sqrt(self.parts(tau).iter().sum())
@@ -103,17 +100,19 @@ impl Model {
         let h0 = self.h0_projection + self.h0_dick;
         let t = self.attack_s;
         if self.frequency_power_laws_only() {
+            // Modified variance of low-passed white FM per unit h0, shared by every term.
+            let lp = mod_variance_lowpass_white(1.0, tau, t);
             let laser: f64 = self
                 .spec
                 .terms
                 .iter()
                 .map(|&(a, h)| match a {
-                    0 => (h / (4.0 * tau) - mod_variance_lowpass_white(h, tau, t)).max(0.0),
+                    0 => (h / (4.0 * tau) - h * lp).max(0.0),
                     -1 => mod_variance_flicker_highpass(h, tau, t),
-                    _ => mod_variance_lowpass_white(h * (2.0 * PI * t) * (2.0 * PI * t), tau, t),
+                    _ => h * (2.0 * PI * t) * (2.0 * PI * t) * lp,
                 })
                 .sum();
-            return libm::sqrt(laser + mod_variance_lowpass_white(h0, tau, t));
+            return libm::sqrt(laser + h0 * lp);
         }
         self.mod_total_numeric(tau)
     }
@@ -155,6 +154,90 @@ fn log_grid(a: f64, b: f64, n: usize) -> Vec<f64> {
     (0..n).map(|k| libm::exp(la + (lb - la) * k as f64 / (n - 1) as f64)).collect()
 }
 
+/// The parts of one design's budget that everything else is computed from.
+struct Built {
+    model: Model,
+    probe: Probe,
+    ro: Readout,
+    op: crate::projection::Operating,
+    proj: crate::projection::Projection,
+    gf: SensitivityFunction,
+    dick: crate::dick::DickSum,
+}
+
+/// Operating point, projection noise, g(t), Dick sum and the budget model of a validated design.
+fn build(d: &Design) -> Result<Built, InputError> {
+    let cycle = d.cycle_time_s();
+    let nu0 = d.transition.frequency_hz;
+    let probe = Probe::from_design(d);
+    let ro = Readout::from_design(d);
+    let op = operating_point(&probe, &ro, d.lock.operating_point)?;
+    let proj = projection_noise(d, &op, cycle);
+    let gf = SensitivityFunction::new(&probe, op.detuning_hz)?;
+    let spec = Spectrum::from_laser(&d.laser, nu0);
+    let dick = dick_sum(&gf, &spec);
+    let attack_s = d.lock.attack_time_s;
+    let mut features = spec.breakpoints();
+    features.push(1.0 / (2.0 * PI * attack_s));
+    let model = Model {
+        spec,
+        attack_s,
+        h0_projection: 2.0 * proj.sigma_1s * proj.sigma_1s,
+        h0_dick: 2.0 * dick.variance_coefficient,
+        features,
+        drift: d.laser.drift_per_s,
+    };
+    Ok(Built { model, probe, ro, op, proj, gf, dick })
+}
+
+/// Largest number of averaging times [`locked_variances`] accepts at once.
+pub const MAX_LOCKED_TAUS: usize = 4096;
+
+/// A design's locked-laser model, prepared once (operating point, g(t), Dick sum) and then
+/// evaluated at any averaging time, with the same model and numbers as [`evaluate`]. For
+/// putting several clocks on one grid of averaging times (comparisons of clocks).
+pub struct LockedModel {
+    model: Model,
+}
+
+impl LockedModel {
+    /// Validates the design and prepares its model.
+    pub fn new(d: &Design) -> Result<LockedModel, InputError> {
+        d.validate()?;
+        Ok(LockedModel { model: build(d)?.model })
+    }
+
+    /// Allan variances by mechanism `[laser, projection, dick]` and the modified Allan
+    /// variance (fractional, squared) at `tau_s` (s, within (0, 1e9]; not checked here).
+    pub fn variances(&self, tau_s: f64) -> ([f64; 3], f64) {
+        let m = self.model.mod_total(tau_s);
+        (self.model.parts(tau_s), m * m)
+    }
+}
+
+/// Checks a list of averaging times: at most [`MAX_LOCKED_TAUS`], each finite, above 0 and
+/// at most [`caps::MAX_TAU_S`]; errors name `tau_s[i]`.
+pub fn check_taus(taus_s: &[f64]) -> Result<(), InputError> {
+    if taus_s.len() > MAX_LOCKED_TAUS {
+        return Err(InputError::single("tau_s", format!("{} averaging times", taus_s.len()), format!("at most {MAX_LOCKED_TAUS}")));
+    }
+    for (i, &t) in taus_s.iter().enumerate() {
+        if !t.is_finite() || t <= 0.0 || t > caps::MAX_TAU_S {
+            return Err(InputError::single(format!("tau_s[{i}]"), crate::error::show(t), format!("an averaging time must be a finite number above 0 and at most {:e} s", caps::MAX_TAU_S)));
+        }
+    }
+    Ok(())
+}
+
+/// The locked laser of design `d` at each averaging time of `taus_s` (s): its Allan
+/// variances by mechanism `[laser, projection, dick]` and its modified Allan variance (both
+/// fractional, squared), from the same model and numbers as [`evaluate`].
+pub fn locked_variances(d: &Design, taus_s: &[f64]) -> Result<Vec<([f64; 3], f64)>, InputError> {
+    check_taus(taus_s)?;
+    let m = LockedModel::new(d)?;
+    Ok(taus_s.iter().map(|&tau| m.variances(tau)).collect())
+}
+
 /// Evaluates a design: validates it, then computes the whole budget.
 ///
 /// ```
@@ -167,25 +250,9 @@ pub fn evaluate(d: &Design, opt: &EvalOptions) -> Result<Evaluation, InputError>
     let cycle = d.cycle_time_s();
     check_options(opt, cycle)?;
     let nu0 = d.transition.frequency_hz;
-    let probe = Probe::from_design(d);
-    let ro = Readout::from_design(d);
-    let op = operating_point(&probe, &ro, d.lock.operating_point)?;
-    let proj = projection_noise(d, &op, cycle);
-    let gf = SensitivityFunction::new(&probe, op.detuning_hz)?;
-    let spec = Spectrum::from_laser(&d.laser, nu0);
-    let dick = dick_sum(&gf, &spec);
+    let Built { model, probe, ro, op, proj, gf, dick } = build(d)?;
     let sigma_dick_1s = libm::sqrt(dick.variance_coefficient);
     let attack_s = d.lock.attack_time_s;
-    let mut features = spec.breakpoints();
-    features.push(1.0 / (2.0 * PI * attack_s));
-    let model = Model {
-        spec,
-        attack_s,
-        h0_projection: 2.0 * proj.sigma_1s * proj.sigma_1s,
-        h0_dick: 2.0 * dick.variance_coefficient,
-        features,
-        drift: d.laser.drift_per_s,
-    };
 
     let taus = log_grid(cycle, opt.tau_max_s, opt.tau_points);
     let mut curve = Curve { tau_s: taus.clone(), total: vec![], laser: vec![], projection: vec![], dick: vec![], mod_total: vec![], free_laser: vec![] };
@@ -278,7 +345,12 @@ pub fn evaluate(d: &Design, opt: &EvalOptions) -> Result<Evaluation, InputError>
     let g: Vec<f64> = t_s.iter().map(|&t| gf.at(t.min(cycle * (1.0 - 1e-12))) / gmax).collect();
     let span = 3.0 * op.edge_hz;
     let detuning_hz: Vec<f64> = (0..n).map(|k| -span + 2.0 * span * k as f64 / (n - 1) as f64).collect();
-    let excitation: Vec<f64> = detuning_hz.iter().map(|&nu| probe.excitation(nu)).collect();
+    // An even line is computed on its upper half and mirrored.
+    let mut excitation = vec![0.0; n];
+    for k in (0..n).rev() {
+        let mirror = n - 1 - k;
+        excitation[k] = if probe.line_is_even() && mirror > k { excitation[mirror] } else { probe.excitation(detuning_hz[k]) };
+    }
     let measured = excitation.iter().map(|&p| ro.measured(p)).collect();
 
     Ok(Evaluation {

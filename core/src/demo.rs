@@ -30,3 +30,11 @@ pub fn lasers() -> Vec<Laser> {
     }
     out
 }
+
+/// The demo pair documents, by file name (invented figures; designs from the demo set).
+pub const PAIR_FILES: [(&str, &str); 1] = [("pair-ion-octupole.json", include_str!("../designs/pair-ion-octupole.json"))];
+
+/// The demo pairs.
+pub fn pairs() -> Vec<crate::pair::PairDocument> {
+    PAIR_FILES.iter().filter_map(|(_, text)| crate::pair::PairDocument::from_json(text).ok()).collect()
+}

@@ -37,6 +37,9 @@ pub mod caps {
     pub const MIN_CYCLE_S: f64 = 1e-6;
     /// Largest design name, characters.
     pub const MAX_NAME_CHARS: usize = 200;
+    /// Largest magnitude of a K_alpha override (the most sensitive proposed transitions
+    /// reach about 1e4; 1e6 leaves room without admitting absurd values).
+    pub const MAX_K_ALPHA: f64 = 1e6;
 }
 
 /// One clock design.
@@ -67,6 +70,14 @@ pub struct Transition {
     /// Excited-state lifetime, s; `null` for a state that does not decay on the scale of the probe.
     #[serde(default)]
     pub lifetime_s: Option<f64>,
+    /// Catalog identifier of the transition ([`crate::species::catalog`]), optional; it
+    /// supplies K_alpha for comparisons of clocks unless `k_alpha` overrides it.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub species: Option<String>,
+    /// Sensitivity to the fine-structure constant, K_alpha = (delta nu/nu)/(delta alpha/alpha),
+    /// overriding the catalog's value; optional.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub k_alpha: Option<f64>,
 }
 
 /// The atoms or ions that are probed together.
@@ -276,6 +287,14 @@ impl Design {
         if let Some(t) = self.transition.lifetime_s {
             c.above("transition.lifetime_s", t, 0.0, 1e12, "s");
         }
+        if let Some(id) = &self.transition.species {
+            if crate::species::find(id).is_none() {
+                c.push("transition.species", format!("\"{}\"", clip(id, 40)), format!("must be one of the catalog's identifiers: {}", crate::species::ids()));
+            }
+        }
+        if let Some(k) = self.transition.k_alpha {
+            c.range("transition.k_alpha", k, -caps::MAX_K_ALPHA, caps::MAX_K_ALPHA, "");
+        }
         if self.atoms.count == 0 || self.atoms.count > caps::MAX_ATOMS {
             c.push("atoms.count", self.atoms.count.to_string(), format!("must be a whole number from 1 to {}", caps::MAX_ATOMS));
         }
@@ -365,6 +384,21 @@ impl Design {
             );
         }
         c.range("laser.drift_per_s", l.drift_per_s, -1e-6, 1e-6, "1/s");
+    }
+
+    /// K_alpha of the design's transition: the override `transition.k_alpha`, else the
+    /// catalog's value for `transition.species`, else `None`.
+    pub fn k_alpha(&self) -> Option<f64> {
+        self.transition.k_alpha.or_else(|| self.transition.species.as_deref().and_then(crate::species::find).map(|s| s.k_alpha.value))
+    }
+
+    /// Where the design's K_alpha comes from, as a sentence part, or `None` without one.
+    pub fn k_alpha_source(&self) -> Option<String> {
+        if self.transition.k_alpha.is_some() {
+            return Some("the design's override transition.k_alpha".into());
+        }
+        let sp = self.transition.species.as_deref().and_then(crate::species::find)?;
+        Some(format!("the catalog entry {} ({})", sp.id, sp.k_alpha.source))
     }
 
     /// Duration of one cycle, s, with the detection segments repeated for every round.

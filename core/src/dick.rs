@@ -39,6 +39,18 @@ pub struct DickSum {
     pub g0: f64,
 }
 
+/// 1/i for i < 128 (RECIP[0] unused): the sums below multiply instead of dividing. Indices
+/// stay under 2 (DEGREE + 3) + TAYLOR_TERMS and DEGREE + 62.
+const RECIP: [f64; 128] = {
+    let mut t = [0.0; 128];
+    let mut i = 1;
+    while i < 128 {
+        t[i] = 1.0 / i as f64;
+        i += 1;
+    }
+    t
+};
+
 /// Moments mu_n(theta) = integral_0^1 s^n exp(-i theta s) ds for n = 0..=nmax, with
 /// `e` = exp(-i theta). Upward recurrence where it is stable (|theta| > nmax + 1),
 /// downward recurrence from a far start otherwise (errors damp by |theta|/n per step).
@@ -59,7 +71,7 @@ fn moments(theta: f64, e: Complex64, nmax: usize, out: &mut [Complex64]) {
         }
         let mut mu = e / Complex64::new(big as f64 + 1.0, -theta);
         for n in (1..=big).rev() {
-            mu = (i_theta * mu + e) * (1.0 / n as f64);
+            mu = (i_theta * mu + e) * RECIP[n];
             if n - 1 <= nmax {
                 out[n - 1] = mu;
             }
@@ -86,9 +98,9 @@ fn parseval(gf: &SensitivityFunction) -> Parseval {
     for p in &gf.pieces {
         let w = p.h / tc;
         for (n, a) in p.coef.iter().enumerate() {
-            c0 += w * a / (n + 1) as f64;
+            c0 += w * a * RECIP[n + 1];
             for (k, b) in p.coef.iter().enumerate() {
-                g2 += w * a * b / (n + k + 1) as f64;
+                g2 += w * a * b * RECIP[n + k + 1];
             }
         }
     }
@@ -104,12 +116,12 @@ fn parseval(gf: &SensitivityFunction) -> Parseval {
         b[0] = h_start;
         b[1] = -w * c0;
         for (n, a) in p.coef.iter().enumerate() {
-            b[n + 1] += w * a / (n + 1) as f64;
+            b[n + 1] += w * a * RECIP[n + 1];
         }
         for n in 0..len {
-            ih += w * b[n] / (n + 1) as f64;
+            ih += w * b[n] * RECIP[n + 1];
             for k in 0..len {
-                ih2 += w * b[n] * b[k] / (n + k + 1) as f64;
+                ih2 += w * b[n] * b[k] * RECIP[n + k + 1];
             }
         }
         h_start = b[..len].iter().sum();
@@ -122,6 +134,91 @@ fn parseval(gf: &SensitivityFunction) -> Parseval {
         e0: ROUNDING * g2,
         e2: ROUNDING * k2 * (ih2 + ih * ih),
     }
+}
+
+/// Largest phase theta = omega_m h across a piece for which the Taylor form is used.
+const TAYLOR_THETA: f64 = 3.0;
+/// Terms of the Taylor form: 3^31/31! < 1e-19, and the alternating sum loses at most a
+/// factor exp(3) to cancellation.
+const TAYLOR_TERMS: usize = 32;
+
+/// integral_0^1 P(s) exp(-i theta s) ds = sum_k M_k (-i theta)^k / k! with the real
+/// moments M_k = integral_0^1 s^k P(s) ds = sum_n a_n / (n + k + 1), split into the even
+/// and odd powers of theta: Re = sum_j e_j x^j, Im = -theta sum_j o_j x^j, x = theta^2.
+/// Used for |theta| <= TAYLOR_THETA, where it replaces a serial recurrence by two short
+/// polynomials.
+#[derive(Clone, Copy)]
+struct TaylorForm {
+    even: [f64; TAYLOR_TERMS / 2],
+    odd: [f64; TAYLOR_TERMS / 2],
+}
+
+impl TaylorForm {
+    fn new(coef: &[f64]) -> TaylorForm {
+        let mut t = TaylorForm { even: [0.0; TAYLOR_TERMS / 2], odd: [0.0; TAYLOR_TERMS / 2] };
+        let mut fact = 1.0;
+        for k in 0..TAYLOR_TERMS {
+            if k > 0 {
+                fact *= k as f64;
+            }
+            let mk: f64 = coef.iter().enumerate().map(|(n, a)| a * RECIP[n + k + 1]).sum();
+            let sign = if (k / 2) % 2 == 0 { 1.0 } else { -1.0 };
+            if k % 2 == 0 {
+                t.even[k / 2] = sign * mk / fact;
+            } else {
+                t.odd[k / 2] = sign * mk / fact;
+            }
+        }
+        t
+    }
+
+    /// The integral at `theta`, summing the first `pairs` even and odd coefficients (see
+    /// [`taylor_pairs`]). Each part is Horner in y = x^2 on its even- and odd-indexed
+    /// coefficients, four short independent chains in all.
+    #[inline]
+    fn eval(&self, theta: f64, pairs: usize) -> Complex64 {
+        let x = theta * theta;
+        let y = x * x;
+        let part = |c: &[f64]| -> f64 {
+            let (mut a, mut b) = (0.0, 0.0);
+            for i in (0..pairs).rev() {
+                if i % 2 == 0 {
+                    a = a * y + c[i];
+                } else {
+                    b = b * y + c[i];
+                }
+            }
+            a + x * b
+        };
+        Complex64::new(part(&self.even), -theta * part(&self.odd))
+    }
+}
+
+/// 1 / ((2j - 1) 2j) for j = 1..=TAYLOR_TERMS/2, so that theta^(2j)/(2j)! builds by products.
+const TAYLOR_STEP: [f64; TAYLOR_TERMS / 2] = {
+    let mut t = [0.0; TAYLOR_TERMS / 2];
+    let mut j = 0;
+    while j < TAYLOR_TERMS / 2 {
+        let k = 2 * (j + 1);
+        t[j] = 1.0 / ((k - 1) * k) as f64;
+        j += 1;
+    }
+    t
+};
+
+/// Pairs of Taylor terms needed at `theta`: the first omitted term theta^(2j)/(2j)! (which
+/// bounds the rest, the moments being at most max|P|) is under 1e-19.
+#[inline]
+fn taylor_pairs(theta: f64) -> usize {
+    let x = theta * theta;
+    let mut t = 1.0;
+    for (j, s) in TAYLOR_STEP.iter().enumerate() {
+        t *= x * s;
+        if t < 1e-19 {
+            return j + 1;
+        }
+    }
+    TAYLOR_TERMS / 2
 }
 
 /// Incremental generator of g_1, g_2, ... .
@@ -138,6 +235,8 @@ struct Harmonics<'a> {
     active: Vec<usize>,
     m: usize,
     mu: Vec<Vec<Complex64>>,
+    /// Per active piece, the Taylor form of its integral.
+    taylor: Vec<TaylorForm>,
 }
 
 impl<'a> Harmonics<'a> {
@@ -156,7 +255,8 @@ impl<'a> Harmonics<'a> {
         let step_h = h_of.iter().map(|&h| cis(-w1 * h)).collect();
         let cur_h = vec![Complex64::new(1.0, 0.0); h_of.len()];
         let mu = vec![vec![Complex64::new(0.0, 0.0); DEGREE + 1]; h_of.len()];
-        Harmonics { gf, step_t0, cur_t0, step_h, cur_h, h_of, deg_of, active, m: 0, mu }
+        let taylor = active.iter().map(|&i| TaylorForm::new(&gf.pieces[i].coef)).collect();
+        Harmonics { gf, step_t0, cur_t0, step_h, cur_h, h_of, deg_of, active, m: 0, mu, taylor }
     }
 
     /// Returns g_{m+1}.
@@ -170,7 +270,7 @@ impl<'a> Harmonics<'a> {
             *cur = if exact { cis(-w * self.h_of[g]) } else { *cur * step };
         }
         for (g, &h) in self.h_of.iter().enumerate() {
-            if h > 0.0 {
+            if h > 0.0 && w * h > TAYLOR_THETA {
                 let nmax = self.deg_of[g];
                 moments(w * h, self.cur_h[g], nmax, &mut self.mu[g]);
             }
@@ -179,11 +279,17 @@ impl<'a> Harmonics<'a> {
         for (k, &i) in self.active.iter().enumerate() {
             let p = &self.gf.pieces[i];
             self.cur_t0[k] = if exact { cis(-w * p.t0) } else { self.cur_t0[k] * self.step_t0[k] };
-            let mu = &self.mu[p.group];
-            let mut s = Complex64::new(0.0, 0.0);
-            for (n, a) in p.coef.iter().enumerate() {
-                s += mu[n] * *a;
-            }
+            let theta = w * p.h;
+            let s = if theta <= TAYLOR_THETA {
+                self.taylor[k].eval(theta, taylor_pairs(theta))
+            } else {
+                let mu = &self.mu[p.group];
+                let mut s = Complex64::new(0.0, 0.0);
+                for (n, a) in p.coef.iter().enumerate() {
+                    s += mu[n] * *a;
+                }
+                s
+            };
             c += self.cur_t0[k] * s * p.h;
         }
         c / self.gf.cycle_s

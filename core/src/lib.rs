@@ -18,8 +18,11 @@ pub mod noise;
 pub mod projection;
 pub mod result;
 pub mod sensitivity;
+pub mod pair;
+pub mod reach;
 pub mod sequence;
 pub mod simulate;
+pub mod species;
 pub mod synthesis;
 
 pub use budget::evaluate;

@@ -68,7 +68,9 @@ pub struct Generator {
 impl Generator {
     pub fn new(step: &Step, detuning: f64, gamma: f64) -> Generator {
         let delta = detuning + step.offset;
-        let axis = [step.omega * libm::cos(step.phase), step.omega * libm::sin(step.phase), -delta];
+        // A zero phase needs no trigonometry (and gives the same cos = 1, sin = 0).
+        let (s, c) = if step.phase == 0.0 || step.omega == 0.0 { (0.0, 1.0) } else { libm::sincos(step.phase) };
+        let axis = [step.omega * c, step.omega * s, -delta];
         let [x, y, z] = axis;
         let h = gamma / 2.0;
         let a = [[-h, -z, y], [z, -h, -x], [-y, x, -gamma]];
@@ -88,9 +90,103 @@ impl Generator {
         } else if self.axis[0] == 0.0 && self.axis[1] == 0.0 {
             free_with_decay(self.axis[2], self.gamma, t)
         } else {
-            expm_affine(&self.a, self.gamma, t)
+            driven_with_decay(self.axis, self.gamma, t).unwrap_or_else(|| expm_affine(&self.a, self.gamma, t))
         }
     }
+
+    /// The propagator by the general scaling-and-squaring series, whatever the step: the
+    /// path taken where the closed forms are ill-conditioned, and their check.
+    pub fn propagator_by_series(&self, t: f64) -> Affine {
+        expm_affine(&self.a, self.gamma, t)
+    }
+}
+
+/// A driven step with decay in closed form, where it is well conditioned (None elsewhere).
+///
+/// With h = gamma/2 the generator is a = -h I + B, B = [[0, -z, y], [z, 0, -x], [-y, x, -h]],
+/// whose characteristic polynomial is p(l) = l^3 + h l^2 + n^2 l + h z^2 (n = |axis|). Its
+/// real root r lies in [-h, 0] (p(-h) <= 0 <= p(0)) and is found by Newton steps from
+/// -h z^2/n^2. Q = B - r I has the eigenvalues 0 and q, conj(q) with q = alpha + i beta, so
+/// by Cayley-Hamilton exp(Q t) = I + f1 Q + f2 Q^2 with f1 + f2 q = (exp(q t) - 1)/q
+/// (Putzer's form), and exp(a t) = exp((r - h) t) exp(Q t). The inhomogeneous part follows
+/// from the steady state r_ss of the optical Bloch equations, c = r_ss - exp(a t) r_ss.
+/// Taken when beta t >= 1/2 and the pair is well separated (beta^2 >= c/2); the
+/// cancellations of the form stay at rounding level there.
+fn driven_with_decay(axis: [f64; 3], gamma: f64, t: f64) -> Option<Affine> {
+    let [x, y, z] = axis;
+    let h = gamma / 2.0;
+    let rho2 = x * x + y * y;
+    let n2 = rho2 + z * z;
+    let hz2 = h * z * z;
+    // Newton steps safeguarded by bisection on the bracket [-h, 0]; p is increasing
+    // through its only real root, so the bracket shrinks towards it.
+    let (mut lo, mut hi) = (-h, 0.0);
+    let mut r = -hz2 / n2;
+    let mut converged = false;
+    for _ in 0..60 {
+        let p = ((r + h) * r + n2) * r + hz2;
+        if p == 0.0 {
+            converged = true;
+            break;
+        }
+        if p > 0.0 { hi = r } else { lo = r }
+        let dp = (3.0 * r + 2.0 * h) * r + n2;
+        let mut next = r - p / dp;
+        let newton = next > lo && next < hi;
+        if !newton {
+            next = 0.5 * (lo + hi);
+        }
+        let dr = next - r;
+        r = next;
+        // Quadratic convergence: after a Newton step this small the error is at rounding.
+        if (newton && dr.abs() <= 1e-8 * r.abs()) || hi - lo <= 1e-16 * h {
+            converged = true;
+            break;
+        }
+    }
+    if !converged {
+        return None;
+    }
+    let r = r.clamp(-h, 0.0);
+    let b = h + r;
+    let c = n2 + r * b;
+    let w2 = c - b * b / 4.0;
+    if !(w2 >= 0.5 * c) {
+        return None;
+    }
+    let beta = libm::sqrt(w2);
+    if !(beta * t >= 0.5) {
+        return None;
+    }
+    let alpha = -(h + 3.0 * r) / 2.0;
+    let (sb, cb) = libm::sincos(beta * t);
+    // exp(q t) - 1 = re1 + i im1 with alpha t small: expm1 keeps it accurate, and
+    // cos(beta t) - 1 has no harmful cancellation for beta t >= 1/2.
+    let em1 = libm::expm1(alpha * t);
+    let re1 = em1 * cb + (cb - 1.0);
+    let im1 = (1.0 + em1) * sb;
+    let q2 = alpha * alpha + beta * beta;
+    let f2 = (im1 * alpha / beta - re1) / q2;
+    let f1 = (re1 * alpha + im1 * beta) / q2 - f2 * alpha;
+    let q = [[-r, -z, y], [z, -r, -x], [-y, x, -h - r]];
+    let q_sq = mul3(&q, &q);
+    let scale = libm::exp((r - h) * t);
+    let mut m = [[0.0; 3]; 3];
+    for i in 0..3 {
+        for j in 0..3 {
+            let id = if i == j { 1.0 } else { 0.0 };
+            m[i][j] = scale * (id + f1 * q[i][j] + f2 * q_sq[i][j]);
+        }
+    }
+    // Steady state: w = -1/(1 + s), s = rho^2 / (2 (h^2 + z^2)).
+    // (u, v) = w (h y + z x, z y - h x) / (h^2 + z^2), with the common factor cancelled.
+    let den = rho2 + 2.0 * (h * h + z * z);
+    let ss = [-2.0 * (h * y + z * x) / den, -2.0 * (z * y - h * x) / den, -2.0 * (h * h + z * z) / den];
+    let e_ss = Affine { m, c: [0.0; 3] }.apply(ss);
+    let out = Affine { m, c: [ss[0] - e_ss[0], ss[1] - e_ss[1], ss[2] - e_ss[2]] };
+    // Extreme rates (under- or overflow of the squares) go to the general series.
+    let finite = out.m.iter().flatten().chain(out.c.iter()).all(|v| v.is_finite());
+    finite.then_some(out)
 }
 
 /// Rotation about `axis` by |axis| t (Rodrigues' formula).
@@ -101,7 +197,7 @@ fn rotation(axis: [f64; 3], t: f64) -> Affine {
     }
     let n = libm::sqrt(n2);
     let th = n * t;
-    let (s, c) = (libm::sin(th), libm::cos(th));
+    let (s, c) = libm::sincos(th);
     let k = [axis[0] / n, axis[1] / n, axis[2] / n];
     let kx = [[0.0, -k[2], k[1]], [k[2], 0.0, -k[0]], [-k[1], k[0], 0.0]];
     let mut m = [[0.0; 3]; 3];
@@ -117,7 +213,7 @@ fn rotation(axis: [f64; 3], t: f64) -> Affine {
 /// Free evolution with decay, exactly: (u, v) turn about z at rate `wz` and shrink by
 /// exp(-gamma t / 2); w relaxes to -1 as exp(-gamma t).
 fn free_with_decay(wz: f64, gamma: f64, t: f64) -> Affine {
-    let (s, c) = (libm::sin(wz * t), libm::cos(wz * t));
+    let (s, c) = libm::sincos(wz * t);
     let d = libm::exp(-gamma * t / 2.0);
     let d2 = d * d;
     Affine { m: [[d * c, -d * s, 0.0], [d * s, d * c, 0.0], [0.0, 0.0, d2]], c: [0.0, 0.0, d2 - 1.0] }
@@ -301,6 +397,14 @@ impl Probe {
     /// Excitation probability at the end of the probe, laser detuning `nu_hz` (Hz).
     pub fn excitation(&self, nu_hz: f64) -> f64 {
         ((self.final_state(nu_hz)[2] + 1.0) / 2.0).clamp(0.0, 1.0)
+    }
+
+    /// Whether the line shape is even in the detuning, P(-nu) = P(nu): every drive phase is
+    /// 0 or pi and no step has a detuning offset. Then the reflection u -> -u maps the
+    /// Bloch equations at detuning delta onto those at -delta, leaving the ground state,
+    /// the decay terms and w unchanged.
+    pub fn line_is_even(&self) -> bool {
+        self.steps.iter().all(|s| s.offset == 0.0 && (s.omega == 0.0 || s.phase == 0.0 || s.phase.abs() == PI))
     }
 
     /// A frequency scale of the central feature, Hz: 1/(probe duration x detuning factor).

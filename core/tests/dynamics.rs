@@ -69,6 +69,28 @@ fn propagator_with_decay_matches_rk4() {
     }
 }
 
+/// The closed form of a driven step with decay against the general scaling-and-squaring
+/// series (an independent route to the same matrix exponential), on random steps that
+/// cover both sides of the closed form's conditioning limits.
+#[test]
+fn driven_decay_closed_form_matches_series() {
+    let mut rng = Rng(23);
+    for _ in 0..2000 {
+        let t = rng.log_uniform(1e-4, 10.0);
+        let step = Step { duration_s: t, omega: rng.log_uniform(1e-3, 50.0) / t, phase: rng.uniform(-PI, PI), offset: 0.0 };
+        let gamma = rng.log_uniform(1e-10, 10.0) / t;
+        let det = if rng.uniform(0.0, 1.0) < 0.2 { 0.0 } else { rng.uniform(-20.0, 20.0) / t };
+        let g = Generator::new(&step, det, gamma);
+        let (a, b) = (g.propagator(t), g.propagator_by_series(t));
+        for i in 0..3 {
+            for j in 0..3 {
+                assert!((a.m[i][j] - b.m[i][j]).abs() < 2e-14, "m[{i}][{j}]: {a:?} vs {b:?}");
+            }
+            assert!((a.c[i] - b.c[i]).abs() < 2e-14, "c[{i}]: {a:?} vs {b:?}");
+        }
+    }
+}
+
 /// The closed-form rotation (no decay) and the general matrix exponential agree in the
 /// limit of vanishing decay.
 #[test]
@@ -150,4 +172,46 @@ fn hyper_ramsey_suppresses_the_light_shift() {
     let h4 = shift(hyper, 2.0);
     assert!(h4.abs() > 10.0 * h1.abs(), "residual must grow faster than linearly: {h1} -> {h4}");
     assert!(shift(hyper, 0.0).abs() < 1e-9);
+}
+
+/// The mirror symmetry used to halve the line-shape work: for drive phases 0 and 180
+/// degrees and no offsets, P(-nu) equals P(nu) computed directly (derivation in
+/// `Probe::line_is_even`; checked here by brute force on random sequences with decay).
+#[test]
+fn even_lines_are_even_and_odd_ones_are_flagged() {
+    use clockwright_core::design::Segment;
+    let mut rng = Rng(41);
+    for case in 0..60 {
+        let mut segs = Vec::new();
+        for _ in 0..1 + case % 4 {
+            let phase_deg = [0.0, 180.0, -180.0][(rng.uniform(0.0, 2.999)) as usize];
+            segs.push(Segment::Pulse { duration_s: rng.log_uniform(1e-3, 0.05), area_pi: rng.uniform(0.2, 1.5), phase_deg, detuning_offset_hz: 0.0 });
+            if rng.uniform(0.0, 1.0) < 0.5 {
+                segs.push(Segment::Free { duration_s: rng.log_uniform(1e-3, 0.3) });
+            }
+        }
+        while !matches!(segs.last(), Some(Segment::Pulse { .. })) {
+            segs.pop();
+        }
+        let mut d = design(5e14, 1, segs, 0.05, white_laser(1e-15));
+        d.transition.lifetime_s = Some(rng.log_uniform(0.05, 100.0));
+        let probe = Probe::from_design(&d);
+        assert!(probe.line_is_even(), "case {case}");
+        for _ in 0..10 {
+            let nu = rng.uniform(0.0, 5.0) / probe.duration_s();
+            let (p, m) = (probe.excitation(nu), probe.excitation(-nu));
+            assert!((p - m).abs() < 1e-14, "case {case}: P({nu}) = {p}, P(-nu) = {m}");
+        }
+    }
+    // A 90-degree phase or a detuning offset breaks the symmetry and is flagged.
+    for seg in [
+        Segment::Pulse { duration_s: 0.01, area_pi: 0.5, phase_deg: 90.0, detuning_offset_hz: 0.0 },
+        Segment::Pulse { duration_s: 0.01, area_pi: 0.5, phase_deg: 0.0, detuning_offset_hz: 3.0 },
+    ] {
+        let segs = vec![pulse(0.01, 0.5), Segment::Free { duration_s: 0.1 }, seg];
+        let probe = Probe::from_design(&design(5e14, 1, segs, 0.05, white_laser(1e-15)));
+        assert!(!probe.line_is_even());
+        let nu = 0.3 / probe.duration_s();
+        assert!((probe.excitation(nu) - probe.excitation(-nu)).abs() > 1e-6);
+    }
 }

@@ -21,6 +21,7 @@ use serde_json::Value;
 use wasm_bindgen::prelude::*;
 
 mod simulate;
+mod pair;
 
 // ---------------------------------------------------------------------------------------
 // Conversion layer (native, tested).

@@ -2,6 +2,7 @@
 
 import init, * as cw from "../dist/pkg/clockwright_wasm.js";
 import type { Problem } from "../dist/pkg/clockwright_wasm.js";
+import { Jobs } from "./jobs";
 
 export type {
   Design,
@@ -30,12 +31,32 @@ export async function loadEngine(doc: Document): Promise<void> {
   if (typeof DecompressionStream === "undefined") {
     throw new Error("this browser lacks DecompressionStream; use a current Chromium, Firefox or Safari");
   }
-  const raw = atob(text);
-  const packed = new Uint8Array(raw.length);
-  for (let i = 0; i < raw.length; i++) packed[i] = raw.charCodeAt(i);
-  const stream = new Blob([packed]).stream().pipeThrough(new DecompressionStream("deflate"));
+  const stream = new Blob([decodeBase64(text)]).stream().pipeThrough(new DecompressionStream("deflate"));
   const bytes = await new Response(stream).arrayBuffer();
-  await init({ module_or_path: bytes });
+  compiled = await WebAssembly.compile(bytes);
+  await init({ module_or_path: compiled });
+  const worker = doc.getElementById("cw-worker")?.textContent?.trim() ?? "";
+  workerSource = worker === "" ? "" : new TextDecoder().decode(decodeBase64(worker));
+}
+
+let compiled: WebAssembly.Module | null = null;
+let workerSource = "";
+let background: Jobs | null = null;
+
+function decodeBase64(text: string): Uint8Array<ArrayBuffer> {
+  const raw = atob(text);
+  const out = new Uint8Array(raw.length);
+  for (let i = 0; i < raw.length; i++) out[i] = raw.charCodeAt(i);
+  return out;
+}
+
+/** The background worker for long jobs (made on first use from the page's cw-worker block). */
+export function jobs(): Jobs {
+  if (!background) {
+    if (!compiled || workerSource === "") throw new Error("the page holds no worker code (the cw-worker block is empty)");
+    background = new Jobs(workerSource, compiled);
+  }
+  return background;
 }
 
 export const engine = {

@@ -520,3 +520,107 @@ export function drawLineShape(container: HTMLElement, evaluation: Evaluation | n
     },
   );
 }
+
+/** One curve of a generic log-log plot; `lo`/`hi` (same length as `x`) draw a band around it. */
+export interface LogSeries {
+  x: number[];
+  y: number[];
+  /** Line style: "total", "laser", "projection", "dick", "free", "measured" (see style.css). */
+  style: string;
+  colour: number;
+  name: string;
+  lo?: number[];
+  hi?: number[];
+  /** Draw points (circles) instead of a line. */
+  points?: boolean;
+}
+
+/** A generic log-log plot. */
+export interface LogPlotSpec {
+  /** Accessible description of the plot. */
+  label: string;
+  xTitle: string;
+  yTitle: string;
+  series: LogSeries[];
+  /** A horizontal reference line with its label (e.g. a target). */
+  reference?: { value: number; label: string };
+  /** Shown when nothing can be plotted. */
+  empty: string;
+}
+
+/**
+ * Draws `spec` afresh into `container`: decade grid, log axes, bands (filled, faint), curves
+ * and points in the design colours. Non-positive and non-finite values are left out.
+ */
+export function drawLogPlot(container: HTMLElement, spec: LogPlotSpec): void {
+  const b = box(container, 0.56, 280, 460);
+  let xLo = Infinity;
+  let xHi = 0;
+  let yLo = Infinity;
+  let yHi = 0;
+  for (const sr of spec.series) {
+    for (let i = 0; i < sr.x.length; i++) {
+      if (!positive(sr.x[i])) continue;
+      for (const v of [sr.y[i], sr.lo?.[i], sr.hi?.[i]]) {
+        if (v !== undefined && positive(v)) {
+          xLo = Math.min(xLo, sr.x[i]);
+          xHi = Math.max(xHi, sr.x[i]);
+          yLo = Math.min(yLo, v);
+          yHi = Math.max(yHi, v);
+        }
+      }
+    }
+  }
+  const ref = spec.reference && positive(spec.reference.value) ? spec.reference : undefined;
+  if (ref && yHi > 0 && ref.value > yLo / 100 && ref.value < yHi * 100) {
+    yLo = Math.min(yLo, ref.value);
+    yHi = Math.max(yHi, ref.value);
+  }
+  if (!(xHi > xLo) || !(yHi > 0)) {
+    emptyPlot(container, b, spec.label, spec.empty, "empty", undefined);
+    return;
+  }
+  const xMin = 10 ** Math.floor(Math.log10(xLo) + 1e-9);
+  const xMax = 10 ** Math.ceil(Math.log10(xHi) - 1e-9);
+  const yMin = 10 ** Math.floor(Math.log10(yLo));
+  const yMax = 10 ** Math.ceil(Math.log10(yHi) + (yHi === yLo ? 1 : 0));
+  const svg = svgFor(container, b, spec.label);
+  const x = scaleLog().domain([xMin, xMax]).range([b.left, b.width - b.right]);
+  const y = scaleLog().domain([yMin, yMax]).range([b.height - b.bottom, b.top]);
+  const root = select(svg);
+  const grid = root.append("g").attr("class", "grid");
+  for (const t of decades(xMin, xMax)) grid.append("line").attr("x1", x(t)).attr("x2", x(t)).attr("y1", b.top).attr("y2", b.height - b.bottom);
+  for (const v of decades(yMin, yMax)) grid.append("line").attr("x1", b.left).attr("x2", b.width - b.right).attr("y1", y(v)).attr("y2", y(v));
+  logAxis(root.append("g").attr("class", "axis x").attr("transform", `translate(0 ${b.height - b.bottom})`), (sc) => axisBottom(sc), x, xMin, xMax);
+  logAxis(root.append("g").attr("class", "axis y").attr("transform", `translate(${b.left} 0)`), (sc) => axisLeft(sc), y, yMin, yMax);
+  axisTitle(svg, b, spec.xTitle, spec.yTitle);
+  const clip = clipRect(svg, b);
+  const plot = root.append("g").attr("clip-path", `url(#${clip})`).node()!;
+  if (ref && ref.value >= yMin && ref.value <= yMax) {
+    plot.append(s("line", { class: "target-line", x1: b.left, x2: b.width - b.right, y1: y(ref.value), y2: y(ref.value) }));
+    svg.append(richSvg(s("text", { class: "target-label", x: b.left + 6, y: y(ref.value) - 6 }), ref.label));
+  }
+  const clampY = (v: number): number => y(Math.min(Math.max(v, yMin / 10), yMax * 10));
+  for (const sr of spec.series) {
+    const g = s("g", { class: `design cw-c${sr.colour}`, "data-name": sr.name });
+    const idx = sr.x.map((_, i) => i).filter((i) => positive(sr.x[i]));
+    if (sr.lo && sr.hi) {
+      const lo = sr.lo;
+      const hi = sr.hi;
+      const bandIdx = idx.filter((i) => positive(lo[i]) && positive(hi[i]));
+      g.append(s("path", { class: "band", d: area<number>().x((i) => x(sr.x[i])).y0((i) => clampY(lo[i])).y1((i) => clampY(hi[i]))(bandIdx) ?? "" }));
+    }
+    const lineIdx = idx.filter((i) => positive(sr.y[i]));
+    if (sr.points) {
+      for (const i of lineIdx) g.append(s("circle", { class: `point ${sr.style}`, cx: x(sr.x[i]), cy: clampY(sr.y[i]), r: 3.5 }));
+    } else {
+      const d =
+        line<number>()
+          .defined((i) => positive(sr.y[i]))
+          .x((i) => x(sr.x[i]))
+          .y((i) => clampY(sr.y[i]))(idx) ?? "";
+      g.append(s("path", { class: `curve ${sr.style}`, d }));
+    }
+    plot.append(g);
+  }
+}

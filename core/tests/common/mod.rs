@@ -50,7 +50,7 @@ pub fn design(nu0: f64, atoms: u64, segments: Vec<Segment>, dead_s: f64, laser: 
     Design {
         schema_version: SCHEMA_VERSION,
         name: "test".into(),
-        transition: Transition { label: String::new(), frequency_hz: nu0, lifetime_s: None },
+        transition: Transition { label: String::new(), frequency_hz: nu0, lifetime_s: None, species: None, k_alpha: None },
         atoms: Atoms { count: atoms, entanglement: Entanglement::None },
         sequence: Sequence { segments: segs },
         detection: Detection { rounds: 1, misread_ground: 0.0, misread_excited: 0.0 },

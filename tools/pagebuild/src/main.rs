@@ -148,6 +148,22 @@ fn run() -> Result<()> {
         "--log-level=warning".into(),
         format!("--outfile={}", js_out.display()),
     ]))?;
+    // The background worker: a classic script (started from a blob: URL by the page).
+    let worker_out = page_dir.join("worker.js");
+    run_cmd(Command::new(node_bin.join("esbuild")).current_dir(&root).args([
+        "www/src/worker.ts".to_string(),
+        "--bundle".into(),
+        "--format=iife".into(),
+        "--platform=browser".into(),
+        "--target=es2020".into(),
+        "--minify".into(),
+        "--legal-comments=none".into(),
+        "--charset=utf8".into(),
+        // The wasm-bindgen glue mentions import.meta.url for fetching the module, which an
+        // IIFE lacks; the worker is always handed the module, so that warning is silenced.
+        "--log-level=error".into(),
+        format!("--outfile={}", worker_out.display()),
+    ]))?;
     run_cmd(Command::new(node_bin.join("esbuild")).current_dir(&root).args([
         "www/src/style.css".to_string(),
         "--bundle".into(),
@@ -165,7 +181,10 @@ fn run() -> Result<()> {
     let wasm_bytes = fs::read(pkg.join(format!("{STEM}_bg.wasm")))?;
     let wasm_base64 = base64(&miniz_oxide::deflate::compress_to_vec_zlib(&wasm_bytes, 10));
     println!("  inlined module: {} compressed to {} in base64", kb(wasm_bytes.len()), kb(wasm_base64.len()));
-    let html = assemble_page(&template, script.trim_end(), style.trim_end(), &wasm_base64)?;
+    let worker = fs::read_to_string(&worker_out)?;
+    let worker_base64 = base64(worker.trim_end().as_bytes());
+    println!("  worker script: {} ({} in base64)", kb(worker.len()), kb(worker_base64.len()));
+    let html = assemble_page(&template, script.trim_end(), style.trim_end(), &wasm_base64, &worker_base64)?;
     let page = dist.join("clockwright.html");
     fs::write(&page, &html)?;
     let size = html.len();
@@ -273,10 +292,11 @@ fn target_dir(root: &Path) -> Result<PathBuf> {
     Ok(PathBuf::from(dir))
 }
 
-/// Fills `{{csp}}`, `{{style}}`, `{{script}}` and `{{wasm}}` (the compressed module in base64,
-/// for a non-executed data block) in one pass, so inserted text is never rescanned, and computes
-/// the Content-Security-Policy from the exact inline script and style.
-fn assemble_page(template: &str, script: &str, style: &str, wasm_base64: &str) -> Result<String> {
+/// Fills `{{csp}}`, `{{style}}`, `{{script}}`, `{{wasm}}` (the compressed module in base64, for
+/// a non-executed data block) and `{{worker}}` (the background worker's script in base64, also
+/// a data block: the page starts it from a blob: URL) in one pass, so inserted text is never
+/// rescanned, and computes the Content-Security-Policy from the exact inline script and style.
+fn assemble_page(template: &str, script: &str, style: &str, wasm_base64: &str, worker_base64: &str) -> Result<String> {
     if script.to_ascii_lowercase().contains("</script") {
         bail!("the bundled script contains \"</script\" and cannot be inlined");
     }
@@ -284,7 +304,7 @@ fn assemble_page(template: &str, script: &str, style: &str, wasm_base64: &str) -
         bail!("the bundled style contains \"</style\" and cannot be inlined");
     }
     let csp = content_security_policy(script, style);
-    let mut out = String::with_capacity(template.len() + script.len() + style.len() + csp.len() + wasm_base64.len());
+    let mut out = String::with_capacity(template.len() + script.len() + style.len() + csp.len() + wasm_base64.len() + worker_base64.len());
     let mut rest = template;
     let mut seen = Vec::new();
     while let Some(start) = rest.find("{{") {
@@ -296,13 +316,14 @@ fn assemble_page(template: &str, script: &str, style: &str, wasm_base64: &str) -
             "style" => style,
             "script" => script,
             "wasm" => wasm_base64,
+            "worker" => worker_base64,
             other => bail!("www/index.html: unknown placeholder {{{{{other}}}}}"),
         });
         seen.push(key.to_string());
         rest = &rest[end + 2..];
     }
     out.push_str(rest);
-    for key in ["csp", "style", "script", "wasm"] {
+    for key in ["csp", "style", "script", "wasm", "worker"] {
         if seen.iter().filter(|k| *k == key).count() != 1 {
             bail!("www/index.html must hold {{{{{key}}}}} exactly once");
         }
@@ -314,7 +335,7 @@ fn content_security_policy(script: &str, style: &str) -> String {
     format!(
         "default-src 'none'; script-src '{}' 'wasm-unsafe-eval'; style-src '{}'; img-src data: blob:; \
          connect-src 'none'; font-src 'none'; media-src 'none'; object-src 'none'; frame-src 'none'; \
-         worker-src 'none'; manifest-src 'none'; base-uri 'none'; form-action 'none'",
+         worker-src blob:; manifest-src 'none'; base-uri 'none'; form-action 'none'",
         csp_hash(script),
         csp_hash(style)
     )
@@ -517,17 +538,19 @@ mod tests {
 
     #[test]
     fn page_assembly_fills_each_placeholder_once_and_hashes_exact_content() {
-        let t = "<meta content=\"{{csp}}\"><style>{{style}}</style><script type=\"application/wasm+base64\">{{wasm}}</script><script type=\"module\">{{script}}</script>";
-        let html = assemble_page(t, "let a = '{{style}}';", "b{color:red}", "AGFzbQ==").unwrap();
+        let t = "<meta content=\"{{csp}}\"><style>{{style}}</style><script type=\"application/wasm+base64\">{{wasm}}</script><script type=\"text/plain\">{{worker}}</script><script type=\"module\">{{script}}</script>";
+        let html = assemble_page(t, "let a = '{{style}}';", "b{color:red}", "AGFzbQ==", "d29ya2Vy").unwrap();
+        assert!(html.contains(">d29ya2Vy</script>"));
+        assert!(html.contains("worker-src blob:"));
         assert!(html.contains(">AGFzbQ==</script>"));
         assert!(html.contains("<script type=\"module\">let a = '{{style}}';</script>"));
         assert!(html.contains(&csp_hash("let a = '{{style}}';")));
         assert!(html.contains(&csp_hash("b{color:red}")));
         assert!(html.contains("default-src 'none'") && html.contains("connect-src 'none'") && html.contains("'wasm-unsafe-eval'"));
         assert!(!html.contains("unsafe-inline"));
-        assert!(assemble_page(t, "x='</script>'", "", "").is_err());
-        assert!(assemble_page("{{csp}}{{style}}{{script}}", "", "", "").is_err());
-        assert!(assemble_page("{{csp}}{{style}}{{script}}{{wasm}}{{other}}", "", "", "").is_err());
+        assert!(assemble_page(t, "x='</script>'", "", "", "").is_err());
+        assert!(assemble_page("{{csp}}{{style}}{{script}}{{wasm}}", "", "", "", "").is_err());
+        assert!(assemble_page("{{csp}}{{style}}{{script}}{{wasm}}{{worker}}{{other}}", "", "", "", "").is_err());
     }
 
     #[test]

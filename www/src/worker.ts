@@ -1,0 +1,87 @@
+// The background worker: runs long computations (simulations, maps) off the page's thread in
+// chunks, posting progress between them. It holds its own instance of the engine, made from
+// the module the page compiled (nothing is fetched). Cancelling terminates the worker; the
+// page starts a fresh one for the next job.
+
+import init, * as cw from "../dist/pkg/clockwright_wasm.js";
+import type { JobRequest, WorkerReply } from "./jobs";
+
+interface Scope {
+  postMessage(message: WorkerReply): void;
+  onmessage: ((ev: MessageEvent) => void) | null;
+}
+const scope = self as unknown as Scope;
+
+/** A job in steps: `advance` does at most `chunk` units of work and returns the fraction done. */
+interface Runner {
+  advance(chunk: number): number;
+  finish(): unknown;
+}
+
+/** A job that is one engine call. */
+function oneCall(f: () => unknown): Runner {
+  let result: unknown;
+  let done = false;
+  return {
+    advance() {
+      if (!done) {
+        result = f();
+        done = true;
+      }
+      return 1;
+    },
+    finish: () => result,
+  };
+}
+
+/** The job kinds the worker knows. */
+const kinds: Record<string, (input: Record<string, unknown>) => Runner> = {
+  evaluate: (input) => oneCall(() => cw.evaluate(input.design as cw.Design, (input.options ?? {}) as cw.EvalOptions)),
+};
+
+/** Problems from an engine error, or one describing any other error. */
+function problemsOf(err: unknown): cw.Problem[] {
+  if (err && typeof err === "object" && Array.isArray((err as { problems?: unknown }).problems)) {
+    return (err as { problems: cw.Problem[] }).problems;
+  }
+  return [{ path: "(worker)", value: "", allowed: err instanceof Error ? err.message : String(err) }];
+}
+
+/** Least time between two progress messages, ms. */
+const PROGRESS_EVERY_MS = 50;
+
+function run(req: Extract<JobRequest, { type: "run" }>): void {
+  const make = kinds[req.kind];
+  if (!make) {
+    scope.postMessage({ type: "failed", id: req.id, problems: [{ path: "(worker)", value: req.kind, allowed: `job kinds are ${Object.keys(kinds).join(", ")}` }] });
+    return;
+  }
+  try {
+    const runner = make(req.input);
+    let last = performance.now();
+    for (;;) {
+      const fraction = runner.advance(req.chunk);
+      if (fraction >= 1) break;
+      const now = performance.now();
+      if (now - last >= PROGRESS_EVERY_MS) {
+        scope.postMessage({ type: "progress", id: req.id, fraction });
+        last = now;
+      }
+    }
+    scope.postMessage({ type: "done", id: req.id, result: runner.finish() });
+  } catch (err) {
+    scope.postMessage({ type: "failed", id: req.id, problems: problemsOf(err) });
+  }
+}
+
+scope.onmessage = (ev: MessageEvent) => {
+  const req = ev.data as JobRequest;
+  if (req.type === "init") {
+    init({ module_or_path: req.module }).then(
+      () => scope.postMessage({ type: "ready" }),
+      (err: unknown) => scope.postMessage({ type: "failed", id: 0, problems: problemsOf(err) }),
+    );
+  } else if (req.type === "run") {
+    run(req);
+  }
+};
