@@ -20,6 +20,7 @@ use serde::Serialize;
 use serde_json::Value;
 use wasm_bindgen::prelude::*;
 
+mod simulate;
 mod pair;
 mod study;
 
