@@ -3,7 +3,7 @@
 // a reach table and the assumptions. The engine computes everything; this module converts the
 // fields, forwards them and draws. The reach runs in the background worker.
 
-import { clear, h, uniqueId } from "./dom";
+import { clear, h, rich, uniqueId } from "./dom";
 import { engine, jobs, problemsOf, problemText, type PairDocument, type PairEvaluation, type Problem, type Reach, type Species } from "./engine";
 import { Cancelled } from "./jobs";
 import { appendDuration, appendNumber, inputText, parseNumber } from "./format";
@@ -113,7 +113,7 @@ export class PairView {
       h(
         "figure",
         {},
-        h("figcaption", { text: "Projected reach in the coupling d_e of ultralight scalar dark matter to α: the shaded region above the curve is what the campaign would exclude" }),
+        rich(h("figcaption"), "Projected reach in the coupling d_e of ultralight scalar dark matter to α: the shaded region above the curve is what the campaign would exclude"),
         this.els.reachPlot,
       ),
       h("div", { class: "pair-columns" }, h("div", { class: "table-wrap" }, this.els.table), h("div", {}, h("h3", { text: "Assumptions and notes" }), this.els.notes)),
@@ -381,15 +381,15 @@ export class PairView {
         campaign("sessions", "Sessions", "", { integer: true }),
         campaign("session_length_s", "Session length", "s"),
         campaign("spacing_s", "Spacing (start to start)", "s"),
-        campaign("uptime", "Uptime", "fraction of each session", { hint: "above 0, at most 1" }),
-        campaign("systematic_per_session", "Systematic uncertainty per session", "fractional, 1σ"),
+        campaign("uptime", "Uptime", "", { hint: "fraction of each session with valid data: above 0, at most 1" }),
+        campaign("systematic_per_session", "Systematic uncertainty per session", "1σ", { hint: "fractional, independent between sessions" }),
       ),
       this.section(
         "Reach",
         "pair.reach",
         this.numberField({
           path: RHO_PATH,
-          label: "Local dark-matter density ρ_DM",
+          label: "Local dark-matter density ρ_{DM}",
           unit: "GeV/cm³",
           get: (q) => q.rho_dm_gev_per_cm3,
           set: (q, v) => {
@@ -427,7 +427,7 @@ export class PairView {
     const hintEl = hint ? h("span", { class: "hint", id: `${id}-hint`, text: hint }) : null;
     if (hintEl) described.push(hintEl.id);
     control.setAttribute("aria-describedby", described.join(" "));
-    return h("div", { class: "field", data: { field: path } }, h("label", { attrs: { for: id }, text: label }), row, hintEl, err);
+    return h("div", { class: "field", data: { field: path } }, rich(h("label", { attrs: { for: id } }), label), row, hintEl, err);
   }
 
   private numberField(spec: NumberSpec): HTMLElement {
@@ -507,9 +507,10 @@ export class PairView {
     const state = this.state;
     const a = state ? pairSlot(state, "a")?.colour ?? 0 : 0;
     const b = state ? pairSlot(state, "b")?.colour ?? 1 : 1;
+    const bb = b === a ? (a + 1) % 8 : b;
     let total = 0;
-    while (total === a || total === b) total++;
-    return { a, b: b === a ? (a + 1) % 8 : b, total };
+    while (total === a || total === bb) total++;
+    return { a, b: bb, total };
   }
 
   private drawPlots(): void {
@@ -558,7 +559,7 @@ export class PairView {
       xTitle: "Mass of the field m (eV)",
       yTitle: "d_e (1σ reach)",
       series: reachSeries,
-      empty: r ? `No sensitivity to α: ${r.dark_matter.note}` : "No reach computed yet.",
+      empty: r ? r.dark_matter.note : "No reach computed yet.",
     });
   }
 
@@ -573,10 +574,13 @@ export class PairView {
     t.append(h("caption", { text: "What the pair measures" }), h("thead", {}, h("tr", {}, h("th", { text: "Quantity", attrs: { scope: "col" } }), h("th", { text: "Value", attrs: { scope: "col" } }))));
     const body = h("tbody");
     t.append(body);
-    const row = (id: string, label: string, fill: (td: HTMLTableCellElement) => void): void => {
+    /** A row; `label` may carry _ subscripts, `name` (a design's name) is plain text. */
+    const row = (id: string, label: string, fill: (td: HTMLTableCellElement) => void, name = ""): void => {
       const td = h("td");
       fill(td);
-      body.append(h("tr", { data: { row: id } }, h("th", { text: label, attrs: { scope: "row" } }), td));
+      const th = rich(h("th", { attrs: { scope: "row" } }), label);
+      if (name) th.append(` (${name})`);
+      body.append(h("tr", { data: { row: id } }, th, td));
     };
     const none = (td: HTMLElement, why: string) => td.append(h("span", { class: "none", text: `— ${why}` }));
     if (!ev) {
@@ -585,17 +589,17 @@ export class PairView {
     }
     const kText = (k: number | null, s: Slot | null, td: HTMLElement) => {
       if (k === null) {
-        none(td, "not known (set the transition's species or K_α in the design editor)");
+        none(td, "not known (set the transition's catalog species or its K in the design editor)");
         return;
       }
       appendNumber(td, k, 3);
       td.append(h("span", { class: "source", text: ` (${this.kSource(s)})` }));
     };
-    row("k-a", `K_α of A${a ? ` (${a.design.name})` : ""}`, (td) => kText(ev.k_alpha_a, a, td));
-    row("k-b", `K_α of B${b ? ` (${b.design.name})` : ""}`, (td) => kText(ev.k_alpha_b, b, td));
+    row("k-a", "K_α of A", (td) => kText(ev.k_alpha_a, a, td), a?.design.name);
+    row("k-b", "K_α of B", (td) => kText(ev.k_alpha_b, b, td), b?.design.name);
     row("delta-k", "ΔK = K_A − K_B", (td) => {
-      if (ev.delta_k === null) none(td, "no sensitivity to α: K_α is not known for both clocks");
-      else if (ev.delta_k === 0) none(td, "no sensitivity to α: both clocks have the same K_α");
+      if (ev.delta_k === null) none(td, "no sensitivity to α: the sensitivity coefficient K is not known for both clocks");
+      else if (ev.delta_k === 0) none(td, "no sensitivity to α: both clocks have the same sensitivity coefficient K");
       else appendNumber(td, ev.delta_k, 3);
     });
     for (const [id, tau, name] of [["ratio-1s", 1, "1 s"], ["ratio-1d", 86400, "1 day"]] as [string, number, string][]) {
