@@ -116,7 +116,7 @@ pub fn reach_js(
 
 /// TypeScript declarations of the shapes above (merged with those of lib.rs).
 #[allow(dead_code)]
-const TS_PAIR_SHAPES: &str = r#"
+pub(crate) const TS_PAIR_SHAPES: &str = r#"
 /** Optional catalog fields of a transition (merged into Transition). */
 export interface Transition { species?: string; k_alpha?: number; }
 
