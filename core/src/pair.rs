@@ -253,6 +253,29 @@ pub struct PairEvaluation {
     pub assumptions: Vec<String>,
     /// Findings in sentences.
     pub notes: Vec<String>,
+    /// The ratio at the single-clock checkpoints (1 s, 1000 s, one day).
+    pub checkpoints: Vec<PairCheckpoint>,
+}
+
+/// The ratio's Allan deviation at one named averaging time.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct PairCheckpoint {
+    /// Averaging time, s.
+    pub tau_s: f64,
+    /// Allan deviation of the ratio there (fractional); `None` when the averaging time is
+    /// shorter than one comparison cycle, where the ratio has no Allan deviation.
+    pub sigma: Option<f64>,
+}
+
+/// The ratio's Allan deviation at each of [`crate::budget::CHECKPOINTS_S`] from `ratio`
+/// (`None` below one comparison cycle).
+pub fn ratio_checkpoints(ratio: &Ratio) -> Result<Vec<PairCheckpoint>, InputError> {
+    let mut out = Vec::new();
+    for &tau in crate::budget::CHECKPOINTS_S.iter() {
+        let sigma = if tau >= ratio.cycle_s { Some(libm::sqrt(ratio.at(&[tau])?[0].total)) } else { None };
+        out.push(PairCheckpoint { tau_s: tau, sigma });
+    }
+    Ok(out)
 }
 
 impl PairDocument {
@@ -734,6 +757,7 @@ pub fn evaluate_pair(doc: &PairDocument, opt: &PairOptions) -> Result<PairEvalua
         Some(dk) if dk == 0.0 => notes.push("Both clocks have the same K_alpha: the ratio has no sensitivity to alpha.".into()),
         _ => {}
     }
+    let checkpoints = ratio_checkpoints(&ratio)?;
     Ok(PairEvaluation {
         comparison: doc.comparison,
         cycle_time_s: ratio.cycle_s,
@@ -748,5 +772,6 @@ pub fn evaluate_pair(doc: &PairDocument, opt: &PairOptions) -> Result<PairEvalua
         correlation,
         assumptions,
         notes,
+        checkpoints,
     })
 }

@@ -249,6 +249,17 @@ pub struct Levelling {
     /// Averaging time at which the height resolution reaches the target, s.
     pub time_to_target_s: Option<f64>,
     pub note: String,
+    /// Height resolution at the single-clock checkpoints (1 s, 1000 s, one day).
+    pub checkpoints: Vec<HeightCheckpoint>,
+}
+
+/// Height resolution at one named averaging time.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct HeightCheckpoint {
+    /// Averaging time, s.
+    pub tau_s: f64,
+    /// c^2 sigma_R(tau)/g, m; `None` below one comparison cycle.
+    pub height_m: Option<f64>,
 }
 
 /// Everything a pair reaches.
@@ -457,7 +468,8 @@ pub fn reach(doc: &PairDocument, opt: &ReachOptions) -> Result<Reach, InputError
     let height_m: Vec<f64> = pts.iter().map(|p| c2g * libm::sqrt(p.total)).collect();
     let target = opt.height_target_m;
     let (time_to_target_s, lnote) = levelling_time(&ratio, cycle, c2g, target)?;
-    let levelling = Levelling { tau_s: taus, height_m, target_m: target, time_to_target_s, note: lnote };
+    let checkpoints = crate::pair::ratio_checkpoints(&ratio)?.into_iter().map(|c| HeightCheckpoint { tau_s: c.tau_s, height_m: c.sigma.map(|s| c2g * s) }).collect();
+    let levelling = Levelling { tau_s: taus, height_m, target_m: target, time_to_target_s, note: lnote, checkpoints };
 
     let mut assumptions = vec![
         drift.fit_model.clone(),

@@ -59,6 +59,38 @@ fn independent_lasers_add_the_two_single_clock_budgets() {
 }
 
 #[test]
+fn checkpoints_of_independent_lasers_add_the_single_clock_checkpoints_in_variance() {
+    // Slow twin: each clock's own evaluation at 1 s, 1000 s and one day; independent noise adds
+    // in variance (IEEE Std 1139-2008). The height checkpoints are c^2 sigma/g of the same points.
+    let mut p = demo_pair();
+    p.link = None;
+    let e = evaluate_pair(&p, &PairOptions::default()).unwrap();
+    let ea = evaluate(&p.a, &EvalOptions::default()).unwrap();
+    let eb = evaluate(&p.b, &EvalOptions::default()).unwrap();
+    assert_eq!(e.checkpoints.len(), 3);
+    let r = clockwright_core::reach::reach(&p, &clockwright_core::reach::ReachOptions { mass_points: 3, ..Default::default() }).unwrap();
+    for (k, c) in e.checkpoints.iter().enumerate() {
+        assert_eq!(c.tau_s, ea.checkpoints[k].tau_s);
+        let want = libm::sqrt(ea.checkpoints[k].total * ea.checkpoints[k].total + eb.checkpoints[k].total * eb.checkpoints[k].total);
+        let got = c.sigma.unwrap();
+        assert!(rel(got, want) < 1e-12, "tau {}: {got} vs {want}", c.tau_s);
+        let h = r.levelling.checkpoints[k].height_m.unwrap();
+        assert!(rel(h, 299_792_458.0f64.powi(2) * got / 9.806_65) < 1e-12, "height at {} s: {h}", c.tau_s);
+    }
+    // Below one comparison cycle there is no Allan deviation: no number, never NaN.
+    let mut slow = demo_pair();
+    for seg in slow.a.sequence.segments.iter_mut().chain(slow.b.sequence.segments.iter_mut()) {
+        if let clockwright_core::design::Segment::Dead { duration_s, .. } = seg {
+            *duration_s *= 40.0;
+        }
+    }
+    let e = evaluate_pair(&slow, &PairOptions::default()).unwrap();
+    assert!(e.cycle_time_s > 1.0, "cycle {}", e.cycle_time_s);
+    assert_eq!(e.checkpoints[0].sigma, None);
+    assert!(e.checkpoints[1].sigma.unwrap().is_finite());
+}
+
+#[test]
 fn link_noise_adds_its_own_allan_variance() {
     let mut p = demo_pair();
     p.link = None;

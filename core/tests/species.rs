@@ -84,6 +84,7 @@ fn mercury_ion_is_about_ten_times_more_sensitive_to_alpha_than_the_ytterbium_lat
 #[test]
 fn design_species_and_k_override_resolve_and_round_trip() {
     let mut d = demo::designs()[0].clone();
+    d.transition.species = None;
     assert_eq!(d.k_alpha(), None);
     assert!(!d.to_json().contains("species"), "absent optional fields are not written");
     d.transition.species = Some("al27_ion".into());
@@ -95,9 +96,14 @@ fn design_species_and_k_override_resolve_and_round_trip() {
     let back = Design::from_json(&d.to_json()).unwrap();
     assert_eq!(back, d);
     // Older documents without the fields keep parsing to the same design.
-    let old = Design::from_json(demo::FILES[0].1).unwrap();
+    let mut v: serde_json::Value = serde_json::from_str(demo::FILES[0].1).unwrap();
+    v["transition"].as_object_mut().unwrap().remove("species");
+    let old = Design::from_value(v).unwrap();
     assert_eq!(old.transition.species, None);
     assert_eq!(old.transition.k_alpha, None);
+    let mut with = old.clone();
+    with.transition.species = Some("al27_ion".into());
+    assert_eq!(Design::from_json(demo::FILES[0].1).unwrap(), with, "the demo file differs only by its species");
 }
 
 #[test]

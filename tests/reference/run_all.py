@@ -38,7 +38,7 @@ OPTIONS = HERE / "cases" / "options.json"
 
 def jobs():
     out = []
-    for p in sorted((ROOT / "core" / "designs").glob("*.json")):
+    for p in sorted(q for q in (ROOT / "core" / "designs").glob("*.json") if not q.name.startswith("pair-")):  # pair documents are checked by reach.py
         out.append((p.stem, str(p), None))
     for p in sorted((HERE / "cases").glob("*.json")):
         if p.name != OPTIONS.name:

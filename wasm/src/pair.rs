@@ -116,7 +116,7 @@ pub fn reach_js(
 
 /// TypeScript declarations of the shapes above (merged with those of lib.rs).
 #[allow(dead_code)]
-const TS_PAIR_SHAPES: &str = r#"
+pub(crate) const TS_PAIR_SHAPES: &str = r#"
 /** Optional catalog fields of a transition (merged into Transition). */
 export interface Transition { species?: string; k_alpha?: number; }
 
@@ -191,7 +191,10 @@ export interface PairEvaluation {
   correlation: CorrelationResult | null;
   assumptions: string[];
   notes: string[];
+  checkpoints: PairCheckpoint[];
 }
+/** The ratio at 1 s, 1000 s and one day (sigma null below one comparison cycle). */
+export interface PairCheckpoint { tau_s: number; sigma: number | null; }
 
 export interface ReachOptions {
   rho_dm_gev_per_cm3: number;
@@ -233,7 +236,10 @@ export interface Levelling {
   target_m: number;
   time_to_target_s: number | null;
   note: string;
+  checkpoints: HeightCheckpoint[];
 }
+/** Height resolution at 1 s, 1000 s and one day (null below one comparison cycle). */
+export interface HeightCheckpoint { tau_s: number; height_m: number | null; }
 /** What a pair reaches over its campaign. */
 export interface Reach {
   campaign_span_s: number;

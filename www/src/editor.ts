@@ -124,6 +124,8 @@ export class Editor {
         this.textField("transition.label", "Label", "e.g. the ion and the levels"),
         this.numberField({ path: "transition.frequency_hz", label: "Frequency ν_0", unit: "Hz" }),
         this.numberField({ path: "transition.lifetime_s", label: "Excited-state lifetime", unit: "s", optional: "none (no decay)", hint: "leave empty for a state that does not decay during the probe" }),
+        this.speciesField(),
+        this.numberField({ path: "transition.k_alpha", label: "Sensitivity to α, K_α", unit: "", optional: "the catalog's value", hint: "overrides the catalog species' K_α in clock comparisons" }),
       ),
       this.atomsSection(d),
       this.sequenceSection(d),
@@ -307,6 +309,17 @@ export class Editor {
       }
     });
     return this.fieldShell(path, label, sel, unit);
+  }
+
+  /** The catalog species of the transition (it supplies K_α for clock comparisons). */
+  private speciesField(): HTMLElement {
+    const slot = this.slot!;
+    const options: [string, string][] = [["", "none (no catalog species)"], ...engine.speciesCatalog().map((sp): [string, string] => [sp.id, sp.name])];
+    return this.selectField("transition.species", "Catalog species", options, (value) => {
+      if (value === "") delete slot.design.transition.species;
+      else slot.design.transition.species = value;
+      this.host.changed(slot);
+    });
   }
 
   private button(text: string, label: string, focusKey: string, onClick: () => void, disabled = false): HTMLButtonElement {

@@ -18,6 +18,15 @@ export type {
   DeadLabel,
   Entanglement,
   Mechanism,
+  Species,
+  PairDocument,
+  PairEvaluation,
+  PairOptions,
+  Comparison,
+  Link,
+  Campaign,
+  Reach,
+  ReachOptions,
 } from "../dist/pkg/clockwright_wasm.js";
 
 /**
@@ -67,6 +76,11 @@ export const engine = {
   presetSegments: cw.presetSegments,
   parseSpectrumCsv: cw.parseSpectrumCsv,
   schemaVersion: cw.schemaVersion,
+  speciesCatalog: cw.speciesCatalog,
+  demoPairs: cw.demoPairs,
+  validatePair: cw.validatePair,
+  evaluatePair: cw.evaluatePair,
+  reach: cw.reach,
 };
 
 /** The problems carried by an error thrown by the engine (or one describing any other error). */

@@ -5,6 +5,7 @@ import { clear, h } from "./dom";
 import { Editor } from "./editor";
 import { engine, loadEngine, problemsOf, problemText, type Design, type PresetInfo, type Problem } from "./engine";
 import { inputText, parseNumber } from "./format";
+import { mountPairView, type PairView } from "./pairview";
 import { drawLegend, drawLineShape, drawSensitivity, drawSigma, watchWidth } from "./plots";
 import { drawDetails, drawTable } from "./results";
 import {
@@ -40,6 +41,7 @@ class App {
   private state: State;
   private storage = localStore(window);
   private editor: Editor;
+  private pairView: PairView;
   private demos: Design[];
   private pending = false;
   /** An update ran since the last animation frame: further edits wait for the next one. */
@@ -84,6 +86,7 @@ class App {
       if (restored) this.message("The stored workspace could not be read, so the demo designs were loaded:", restored.problems);
     }
     this.editor = new Editor(this.els.editor, { changed: (s) => this.request(s), restructured: (s, f) => this.restructured(s, f) }, presets);
+    this.pairView = mountPairView(byId("pair-view"), { changed: () => this.persist() });
   }
 
   start(): void {
@@ -305,6 +308,7 @@ class App {
       this.editor.showSummary(sel);
     }
     this.showTargetProblem();
+    this.pairView.update(this.state);
   }
 
   private drawPlots(): void {

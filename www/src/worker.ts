@@ -37,6 +37,7 @@ function oneCall(f: () => unknown): Runner {
 /** The job kinds the worker knows. */
 const kinds: Record<string, (input: Record<string, unknown>) => Runner> = {
   evaluate: (input) => oneCall(() => cw.evaluate(input.design as cw.Design, (input.options ?? {}) as cw.EvalOptions)),
+  reach: (input) => oneCall(() => cw.reach(input.pair as cw.PairDocument, (input.options ?? {}) as Partial<cw.ReachOptions>)),
 };
 
 /** Problems from an engine error, or one describing any other error. */

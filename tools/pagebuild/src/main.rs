@@ -394,10 +394,15 @@ export const presets = started_("presets", engine.presets);
 export const presetSegments = started_("presetSegments", engine.presetSegments);
 export const parseSpectrumCsv = started_("parseSpectrumCsv", engine.parseSpectrumCsv);
 export const schemaVersion = started_("schemaVersion", engine.schemaVersion);
+export const speciesCatalog = started_("speciesCatalog", engine.speciesCatalog);
+export const demoPairs = started_("demoPairs", engine.demoPairs);
+export const validatePair = started_("validatePair", engine.validatePair);
+export const evaluatePair = started_("evaluatePair", engine.evaluatePair);
+export const reach = started_("reach", engine.reach);
 "#;
 
 const PACKAGE_ENTRY_TYPES: &str = r#"export type * from "./clockwright_wasm.js";
-export { evaluate, validate, demoDesigns, presets, presetSegments, parseSpectrumCsv, schemaVersion } from "./clockwright_wasm.js";
+export { evaluate, validate, demoDesigns, presets, presetSegments, parseSpectrumCsv, schemaVersion, speciesCatalog, demoPairs, validatePair, evaluatePair, reach } from "./clockwright_wasm.js";
 /** Loads and starts the WebAssembly module (once); await it before calling any other function. */
 export function ready(): Promise<void>;
 "#;
