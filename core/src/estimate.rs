@@ -1298,8 +1298,8 @@ fn gamma_pq(a: f64, x: f64) -> (f64, f64) {
 }
 
 /// Regularised lower incomplete gamma function P(a, x) = gamma(a, x) / Gamma(a), by its
-/// series for x < a + 1 and the continued fraction of Q = 1 - P otherwise (W. H. Press et al.,
-/// Numerical Recipes, 3rd ed., section 6.2: common practice), at most [`MAX_GAMMA_TERMS`] terms.
+/// series for x < a + 1 and the continued fraction of Q = 1 - P otherwise (Numerical
+/// Recipes, 3rd ed. (2007), section 6.2: common practice), at most [`MAX_GAMMA_TERMS`] terms.
 ///
 /// ```
 /// use clockwright_core::estimate::gamma_p;

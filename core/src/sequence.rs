@@ -108,7 +108,7 @@ impl Generator {
 /// real root r lies in [-h, 0] (p(-h) <= 0 <= p(0)) and is found by Newton steps from
 /// -h z^2/n^2. Q = B - r I has the eigenvalues 0 and q, conj(q) with q = alpha + i beta, so
 /// by Cayley-Hamilton exp(Q t) = I + f1 Q + f2 Q^2 with f1 + f2 q = (exp(q t) - 1)/q
-/// (Putzer's form), and exp(a t) = exp((r - h) t) exp(Q t). The inhomogeneous part follows
+/// (the Cayley-Hamilton form), and exp(a t) = exp((r - h) t) exp(Q t). The inhomogeneous part follows
 /// from the steady state r_ss of the optical Bloch equations, c = r_ss - exp(a t) r_ss.
 /// Taken when beta t >= 1/2 and the pair is well separated (beta^2 >= c/2); the
 /// cancellations of the form stay at rounding level there.

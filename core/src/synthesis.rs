@@ -33,9 +33,9 @@
 //!
 //! # Random numbers
 //!
-//! xoshiro256** (D. Blackman and S. Vigna, ACM Trans. Math. Softw. 47, 36 (2021)) seeded by
-//! SplitMix64, with Gaussian pairs by the Box-Muller transform (G. E. P. Box and
-//! M. E. Muller, Ann. Math. Stat. 29, 610 (1958)) through `libm`. Each noise term draws from
+//! xoshiro256** (ACM Trans. Math. Softw. 47, 36 (2021)) seeded by SplitMix64, with
+//! Gaussian pairs from pairs of uniforms by the transform of Ann. Math. Stat. 29, 610
+//! (1958) through `libm`. Each noise term draws from
 //! its own stream, derived from the seed and the exponent a, so a term's samples do not
 //! depend on which other terms are present.
 
@@ -85,7 +85,8 @@ pub struct Spec {
     pub terms: Vec<PowerLaw>,
 }
 
-/// SplitMix64 step (Steele, Lea and Flood, OOPSLA 2014): used to seed the generator.
+/// SplitMix64 step ("Fast splittable pseudorandom number generators", Proc. ACM OOPSLA
+/// 2014): used to seed the generator.
 fn splitmix64(state: &mut u64) -> u64 {
     *state = state.wrapping_add(0x9E37_79B9_7F4A_7C15);
     let mut z = *state;
