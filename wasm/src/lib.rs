@@ -384,25 +384,37 @@ mod tests {
         // Every key the core serialises must be declared in TS_SHAPES (the browser tests
         // check the other direction with the TypeScript compiler).
         let eval = evaluate_value(demo_value(0), Value::Null).unwrap();
-        let mut keys = Vec::new();
-        fn collect(v: &Value, keys: &mut Vec<String>) {
-            match v {
-                Value::Object(m) => {
-                    for (k, x) in m {
-                        keys.push(k.clone());
-                        collect(x, keys);
-                    }
-                }
-                Value::Array(a) => a.iter().for_each(|x| collect(x, keys)),
-                _ => {}
-            }
-        }
-        collect(&serde_json::to_value(&eval).unwrap(), &mut keys);
+        shapes::assert_declared(&serde_json::to_value(&eval).unwrap());
         for d in demo_designs() {
-            collect(&serde_json::to_value(&d).unwrap(), &mut keys);
+            shapes::assert_declared(&serde_json::to_value(&d).unwrap());
         }
-        // The designs' optional catalog fields (species, k_alpha) are declared with the pair shapes.
-        let all = format!("{TS_SHAPES}{}", pair::TS_PAIR_SHAPES);
+    }
+}
+
+/// The check shared by every module's tests: each key a value serialises to is declared in
+/// one of the TypeScript sections (the browser tests check the other direction with tsc).
+#[cfg(test)]
+pub(crate) mod shapes {
+    use serde_json::Value;
+
+    fn collect(v: &Value, keys: &mut Vec<String>) {
+        match v {
+            Value::Object(m) => {
+                for (k, x) in m {
+                    keys.push(k.clone());
+                    collect(x, keys);
+                }
+            }
+            Value::Array(a) => a.iter().for_each(|x| collect(x, keys)),
+            _ => {}
+        }
+    }
+
+    /// Panics naming the first key of `v` that no TypeScript section declares.
+    pub(crate) fn assert_declared(v: &Value) {
+        let all = [super::TS_SHAPES, super::pair::TS_PAIR_SHAPES, super::study::TS_STUDY_SHAPES, super::simulate::TS_SHAPES].concat();
+        let mut keys = Vec::new();
+        collect(v, &mut keys);
         for k in keys {
             assert!(all.contains(&format!(" {k}:")) || all.contains(&format!(" {k}?:")), "key `{k}` is not declared in the TypeScript shapes");
         }

@@ -291,31 +291,15 @@ mod tests {
 
     #[test]
     fn serialised_pair_shapes_match_the_typescript_declarations() {
-        let mut keys = Vec::new();
-        fn collect(v: &Value, keys: &mut Vec<String>) {
-            match v {
-                Value::Object(m) => {
-                    for (k, x) in m {
-                        keys.push(k.clone());
-                        collect(x, keys);
-                    }
-                }
-                Value::Array(a) => a.iter().for_each(|x| collect(x, keys)),
-                _ => {}
-            }
-        }
-        // Only the pair-level objects: the designs inside are declared in lib.rs.
+        use crate::shapes::assert_declared;
+        // Only the pair-level objects: the designs inside are checked in lib.rs.
         let mut doc = demo_pair_value();
         doc["a"] = Value::Null;
         doc["b"] = Value::Null;
-        collect(&doc, &mut keys);
-        collect(&serde_json::to_value(evaluate_pair_value(demo_pair_value(), Value::Null).unwrap()).unwrap(), &mut keys);
-        collect(&serde_json::to_value(reach_value(demo_pair_value(), json!({"mass_points": 3})).unwrap()).unwrap(), &mut keys);
-        collect(&serde_json::to_value(species_list()).unwrap(), &mut keys);
-        let all = format!("{}{}", crate::TS_SHAPES, TS_PAIR_SHAPES);
-        for k in keys {
-            assert!(all.contains(&format!(" {k}:")) || all.contains(&format!(" {k}?:")), "key `{k}` is not declared in the TypeScript shapes");
-        }
+        assert_declared(&doc);
+        assert_declared(&serde_json::to_value(evaluate_pair_value(demo_pair_value(), Value::Null).unwrap()).unwrap());
+        assert_declared(&serde_json::to_value(reach_value(demo_pair_value(), json!({"mass_points": 3})).unwrap()).unwrap());
+        assert_declared(&serde_json::to_value(species_list()).unwrap());
         for k in ["species", "k_alpha"] {
             assert!(TS_PAIR_SHAPES.contains(&format!(" {k}?:")));
         }

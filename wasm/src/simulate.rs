@@ -127,7 +127,7 @@ pub fn import_measured_js(text: &str, #[wasm_bindgen(unchecked_param_type = "Par
 
 /// TypeScript declarations of the shapes of this file.
 #[allow(dead_code)]
-const TS_SHAPES: &str = r#"
+pub(crate) const TS_SHAPES: &str = r#"
 export interface SimOptions {
   cycles: number;
   settle_cycles: number | null;
@@ -243,19 +243,6 @@ mod tests {
         serde_json::to_value(&clockwright_core::demo::designs()[i]).unwrap()
     }
 
-    fn keys(v: &Value, out: &mut Vec<String>) {
-        match v {
-            Value::Object(m) => {
-                for (k, x) in m {
-                    out.push(k.clone());
-                    keys(x, out);
-                }
-            }
-            Value::Array(a) => a.iter().for_each(|x| keys(x, out)),
-            _ => {}
-        }
-    }
-
     #[test]
     fn chunked_run_forwards_to_core_unchanged_and_shapes_are_declared() {
         let opts = json!({"cycles": 64, "seed": 5, "trace_cycles": 3});
@@ -269,15 +256,12 @@ mod tests {
         let d = clockwright_core::demo::designs().remove(0);
         let direct = clockwright_core::simulate::simulate(&d, &sim_options_from_value(opts).unwrap()).unwrap();
         assert_eq!(via, direct);
-        let mut k = Vec::new();
-        keys(&serde_json::to_value(&via).unwrap(), &mut k);
-        keys(&serde_json::to_value(&p).unwrap(), &mut k);
-        keys(&serde_json::to_value(SimOptions::default()).unwrap(), &mut k);
+        use crate::shapes::assert_declared;
+        assert_declared(&serde_json::to_value(&via).unwrap());
+        assert_declared(&serde_json::to_value(&p).unwrap());
+        assert_declared(&serde_json::to_value(SimOptions::default()).unwrap());
         let m = import_measured_value("# tau0_s: 1\ny\n1\n2\n\n3\n4\n", Value::Null).unwrap();
-        keys(&serde_json::to_value(&m).unwrap(), &mut k);
-        for key in k {
-            assert!(TS_SHAPES.contains(&format!(" {key}:")), "key `{key}` is not declared in the TypeScript shapes");
-        }
+        assert_declared(&serde_json::to_value(&m).unwrap());
     }
 
     #[test]

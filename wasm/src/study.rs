@@ -184,7 +184,7 @@ impl BandRunJs {
 
 /// TypeScript declarations of the study shapes (emitted into the generated .d.ts).
 #[allow(dead_code)]
-const TS_STUDY_SHAPES: &str = r#"
+pub(crate) const TS_STUDY_SHAPES: &str = r#"
 /** What a sweep or map shows. */
 export type Output =
   | { kind: "sigma_at"; tau_s: number }
@@ -298,27 +298,7 @@ mod tests {
         serde_json::to_value(clockwright_core::demo::designs()).unwrap()
     }
 
-    fn collect(v: &Value, keys: &mut Vec<String>) {
-        match v {
-            Value::Object(m) => {
-                for (k, x) in m {
-                    keys.push(k.clone());
-                    collect(x, keys);
-                }
-            }
-            Value::Array(a) => a.iter().for_each(|x| collect(x, keys)),
-            _ => {}
-        }
-    }
-
-    fn assert_declared(v: &Value) {
-        let mut keys = Vec::new();
-        collect(v, &mut keys);
-        let all = format!("{}{}", crate::TS_SHAPES, TS_STUDY_SHAPES);
-        for k in keys {
-            assert!(all.contains(&format!(" {k}:")) || all.contains(&format!(" {k}?:")), "key `{k}` is not declared in the TypeScript shapes");
-        }
-    }
+    use crate::shapes::assert_declared;
 
     #[test]
     fn sweep_forwards_to_core_unchanged_and_its_shape_is_declared() {
