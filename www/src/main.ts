@@ -7,6 +7,7 @@ import { engine, loadEngine, problemsOf, problemText, type Design, type PresetIn
 import { inputText, parseNumber } from "./format";
 import { drawLegend, drawLineShape, drawSensitivity, drawSigma, watchWidth } from "./plots";
 import { drawDetails, drawTable } from "./results";
+import { mountSimulation } from "./simview";
 import {
   MAX_DESIGNS,
   MAX_FILE_BYTES,
@@ -45,6 +46,7 @@ class App {
   /** An update ran since the last animation frame: further edits wait for the next one. */
   private frameUsed = false;
   private dirty = new Set<Slot>();
+  private sim: { refresh(): void } | null = null;
   private all = false;
   /** What the design list was last drawn from. */
   private listKey = "";
@@ -108,6 +110,7 @@ class App {
     this.setupTheme();
     e.breakdown.addEventListener("change", () => this.drawPlots());
     for (const el of [e.sigma, e.g, e.line]) watchWidth(el, () => this.requestRedraw());
+    this.sim = mountSimulation(byId("sim-view"), { selected: () => this.selected(), slots: () => this.state.slots });
     this.editor.render(this.selected());
     this.requestAll();
   }
@@ -305,6 +308,7 @@ class App {
       this.editor.showSummary(sel);
     }
     this.showTargetProblem();
+    this.sim?.refresh();
   }
 
   private drawPlots(): void {
