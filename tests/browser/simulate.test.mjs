@@ -59,6 +59,7 @@ test("a short simulation runs in the worker with progress and equals the native 
     });
     await page.click("#sim-run");
     await page.waitForSelector("#sim-table tbody tr", { timeout: 50_000 });
+    console.log(await page.textContent("#sim-status"));
     const progress = await page.evaluate(() => window.__progress);
     assert.ok(progress.some((v) => v > 0 && v < 100), `progress values between 0 and 100 were shown: ${progress.join(", ")}`);
     assert.equal(await page.locator("#sim-progress").isHidden(), true, "the bar is hidden after the run");

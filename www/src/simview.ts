@@ -7,7 +7,7 @@ import { clear, h } from "./dom";
 import { jobs, problemsOf, problemText, type Design, type Problem } from "./engine";
 import type { Estimate, MeasuredResult, SimOptions, SimResult } from "../dist/pkg/clockwright_wasm.js";
 import { Cancelled } from "./jobs";
-import { appendDuration, numberText, parseNumber } from "./format";
+import { appendDuration, appendNumber, numberText, parseNumber } from "./format";
 import { drawLogPlot, watchWidth, type LogSeries } from "./plots";
 import type { Slot } from "./workspace";
 
@@ -97,7 +97,8 @@ export function mountSimulation(root: HTMLElement, host: SimHost): { refresh(): 
     clear(el.cyclesHint);
     if (!("cycles" in n)) return;
     const tc = slot?.evaluation?.cycle_time_s ?? 0;
-    el.cyclesHint.append(`${numberText(n.cycles, 4)} cycles`);
+    appendNumber(el.cyclesHint, n.cycles, 4);
+    el.cyclesHint.append(" cycles");
     if (tc > 0) {
       el.cyclesHint.append(" ≈ ");
       appendDuration(el.cyclesHint, n.cycles * tc);
@@ -142,7 +143,10 @@ export function mountSimulation(root: HTMLElement, host: SimHost): { refresh(): 
       const seconds = (performance.now() - t0) / 1000;
       run = { uid: slot.uid, key: keyOf(design), name: design.name, colour: slot.colour, result };
       const rate = (result.cycles + result.settle_cycles) / seconds;
-      el.status.textContent = `Simulated ${numberText(result.cycles, 4)} cycles of “${design.name}” (seed ${result.seed}) in ${seconds.toFixed(1)} s: ${numberText(rate, 2)} cycles per second.`;
+      clear(el.status);
+      el.status.append(`Simulated ${result.cycles} cycles of “${design.name}” (seed ${result.seed}) in ${seconds.toFixed(1)} s: `);
+      appendNumber(el.status, rate, 2);
+      el.status.append(" cycles per second.");
       el.root.dataset.rate = String(rate);
     } catch (err) {
       if (err instanceof Cancelled) el.status.textContent = "Cancelled; the last result stays on screen.";
@@ -290,6 +294,16 @@ function shown(v: number, digits = 3): string {
   return Number.isFinite(v) ? numberText(v, digits) : "— (no value)";
 }
 
+/** A table cell showing `v` with a superscript exponent, or "—" with the reason. */
+function numCell(v: number | undefined, digits = 3, cls = "", mark = ""): HTMLTableCellElement {
+  const td = h("td", { class: cls });
+  if (v === undefined) td.append("— (outside the analytic grid)");
+  else if (Number.isFinite(v)) appendNumber(td, v, digits);
+  else td.append("— (no value)");
+  if (mark) td.append(mark);
+  return td;
+}
+
 function drawFindings(el: Els, run: SimRun | null, stale: string | null, measured: Measured | null): void {
   const f = el.findings;
   clear(f);
@@ -302,12 +316,12 @@ function drawFindings(el: Els, run: SimRun | null, stale: string | null, measure
     if (r.departures.length === 0) {
       f.append(h("p", { class: "agree", text: "Where the two agree: the analytic curve lies within the simulation's confidence interval (widened for the model's tolerance) at every averaging time." }));
     } else {
-      f.append(h("p", { text: "Where the two disagree, and why:" }));
+      f.append(h("p", { text: "Where the two disagree, and why (the analytic value lies outside the simulation's 99.9 % interval widened by the model's 10 % tolerance):" }));
       f.append(
         h(
           "ul",
           { class: "departures" },
-          ...r.departures.map((d) => h("li", { text: `τ = ${numberText(d.tau_s, 3)} s: simulated ${shown(d.simulated)} (interval ${shown(d.ci_low)} to ${shown(d.ci_high)}) against analytic ${shown(d.analytic)}. ${d.reason}` })),
+          ...r.departures.map((d) => h("li", { text: `τ = ${numberText(d.tau_s, 3)} s: simulated ${shown(d.simulated)} (99.9 % interval ${shown(d.ci_low)} to ${shown(d.ci_high)}) against analytic ${shown(d.analytic)}: ${d.reason.replace(/\.$/, "")}.` })),
         ),
       );
     }
@@ -320,11 +334,11 @@ function drawFindings(el: Els, run: SimRun | null, stale: string | null, measure
       return h(
         "tr",
         { class: flagged ? "flagged" : "", attrs: { "data-tau": String(p.tau_s) } },
-        h("td", { text: numberText(p.tau_s, 4) }),
-        h("td", { class: "sim", text: shown(p.deviation) + (flagged ? " ⚑" : "") }),
-        h("td", { text: shown(p.ci_low) }),
-        h("td", { text: shown(p.ci_high) }),
-        h("td", { text: a === undefined ? "— (outside the analytic grid)" : shown(a) }),
+        numCell(p.tau_s, 4),
+        numCell(p.deviation, 3, "sim", flagged ? " ⚑" : ""),
+        numCell(p.ci_low),
+        numCell(p.ci_high),
+        numCell(a),
       );
     });
     el.table.append(h("caption", { text: "Simulated against analytic Allan deviation (⚑ flagged departure)" }), h("thead", {}, head), h("tbody", {}, ...rows));
@@ -334,7 +348,7 @@ function drawFindings(el: Els, run: SimRun | null, stale: string | null, measure
     if (m.notes.length > 0) f.append(h("ul", { class: "notes" }, ...m.notes.map((n) => h("li", { text: `${measured.file}: ${n}` }))));
     const head = h("tr", {}, ...["τ (s)", "measured σ_y", "interval low", "interval high", "terms"].map((t) => h("th", { text: t, attrs: { scope: "col" } })));
     const rows = m.adev.points.map((p) =>
-      h("tr", { attrs: { "data-tau": String(p.tau_s) } }, h("td", { text: numberText(p.tau_s, 4) }), h("td", { class: "sim", text: shown(p.deviation) }), h("td", { text: shown(p.ci_low) }), h("td", { text: shown(p.ci_high) }), h("td", { text: String(p.terms) })),
+      h("tr", { attrs: { "data-tau": String(p.tau_s) } }, numCell(p.tau_s, 4), numCell(p.deviation, 3, "sim"), numCell(p.ci_low), numCell(p.ci_high), h("td", { text: String(p.terms) })),
     );
     el.measuredTable.append(h("caption", { text: `Overlapping Allan deviation of ${measured.file}` }), h("thead", {}, head), h("tbody", {}, ...rows));
   }
@@ -357,7 +371,8 @@ function build(root: HTMLElement): Els & { root: HTMLElement } {
   const cyclesError = h("span", { class: "field-error", attrs: { id: "sim-cycles-error", "aria-live": "polite" } });
   const seedError = h("span", { class: "field-error", attrs: { id: "sim-seed-error", "aria-live": "polite" } });
   const plot = h("div", { class: "plot", attrs: { id: "sim-plot" } });
-  const drop = h("div", { class: "sim-drop", attrs: { id: "sim-drop" } }, plot);
+  const key = h("p", { class: "sim-key", text: "Solid line: the analytic curve of the simulated design. Points with a shaded band: the simulated Allan deviation with its confidence interval. Dashed line with a band: imported measured data. Drop a CSV file on the plot to add it." });
+  const drop = h("div", { class: "sim-drop", attrs: { id: "sim-drop" } }, plot, key);
   const file = h("input", { attrs: { id: "sim-file", type: "file", accept: ".csv,.txt,text/csv,text/plain", hidden: "" } });
   const fileButton = h("button", { text: "Open measured CSV…", attrs: { type: "button", id: "sim-file-button" } });
   const clearMeasured = h("button", { class: "small", text: "Remove measured curve", attrs: { type: "button", id: "sim-clear-measured" } });
