@@ -289,11 +289,6 @@ function estimateSeries(e: Estimate, style: string, colour: number, name: string
   };
 }
 
-/** A number as text, or "—" with the reason when it is not a finite number. */
-function shown(v: number, digits = 3): string {
-  return Number.isFinite(v) ? numberText(v, digits) : "— (no value)";
-}
-
 /** A table cell showing `v` with a superscript exponent, or "—" with the reason. */
 function numCell(v: number | undefined, digits = 3, cls = "", mark = ""): HTMLTableCellElement {
   const td = h("td", { class: cls });
@@ -321,7 +316,24 @@ function drawFindings(el: Els, run: SimRun | null, stale: string | null, measure
         h(
           "ul",
           { class: "departures" },
-          ...r.departures.map((d) => h("li", { text: `τ = ${numberText(d.tau_s, 3)} s: simulated ${shown(d.simulated)} (99.9 % interval ${shown(d.ci_low)} to ${shown(d.ci_high)}) against analytic ${shown(d.analytic)}: ${d.reason.replace(/\.$/, "")}.` })),
+          ...r.departures.map((d) => {
+            const li = h("li", { text: "τ = " });
+            const num = (v: number): void => {
+              if (Number.isFinite(v)) appendNumber(li, v, 3);
+              else li.append("— (no value)");
+            };
+            num(d.tau_s);
+            li.append(" s: simulated ");
+            num(d.simulated);
+            li.append(" (99.9 % interval ");
+            num(d.ci_low);
+            li.append(" to ");
+            num(d.ci_high);
+            li.append(") against analytic ");
+            num(d.analytic);
+            li.append(`: ${d.reason.replace(/\.$/, "")}.`);
+            return li;
+          }),
         ),
       );
     }
