@@ -8,6 +8,7 @@ import { inputText, parseNumber } from "./format";
 import { mountPairView, type PairView } from "./pairview";
 import { drawLegend, drawLineShape, drawSensitivity, drawSigma, watchWidth } from "./plots";
 import { drawDetails, drawTable } from "./results";
+import { mountSimulation } from "./simview";
 import {
   MAX_DESIGNS,
   MAX_FILE_BYTES,
@@ -47,6 +48,7 @@ class App {
   /** An update ran since the last animation frame: further edits wait for the next one. */
   private frameUsed = false;
   private dirty = new Set<Slot>();
+  private sim: { refresh(): void } | null = null;
   private all = false;
   /** What the design list was last drawn from. */
   private listKey = "";
@@ -111,6 +113,7 @@ class App {
     this.setupTheme();
     e.breakdown.addEventListener("change", () => this.drawPlots());
     for (const el of [e.sigma, e.g, e.line]) watchWidth(el, () => this.requestRedraw());
+    this.sim = mountSimulation(byId("sim-view"), { selected: () => this.selected(), slots: () => this.state.slots });
     this.editor.render(this.selected());
     this.requestAll();
   }
@@ -309,6 +312,7 @@ class App {
     }
     this.showTargetProblem();
     this.pairView.update(this.state);
+    this.sim?.refresh();
   }
 
   private drawPlots(): void {

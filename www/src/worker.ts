@@ -34,10 +34,24 @@ function oneCall(f: () => unknown): Runner {
   };
 }
 
+/** A cycle-by-cycle simulation (input: design, options), `chunk` cycles at a time. */
+function simulation(input: Record<string, unknown>): Runner {
+  const sim = new cw.Simulation(input.design as cw.Design, (input.options ?? null) as Partial<cw.SimOptions> | null);
+  return {
+    advance(chunk) {
+      const p = sim.advance(chunk);
+      return p.finished ? 1 : Math.min(p.fraction, 0.999);
+    },
+    finish: () => sim.finish(),
+  };
+}
+
 /** The job kinds the worker knows. */
 const kinds: Record<string, (input: Record<string, unknown>) => Runner> = {
   evaluate: (input) => oneCall(() => cw.evaluate(input.design as cw.Design, (input.options ?? {}) as cw.EvalOptions)),
   reach: (input) => oneCall(() => cw.reach(input.pair as cw.PairDocument, (input.options ?? {}) as Partial<cw.ReachOptions>)),
+  simulate: (input) => simulation(input),
+  measured: (input) => oneCall(() => cw.importMeasured(String(input.text ?? ""), (input.options ?? null) as Partial<cw.EstimateOptions> | null)),
 };
 
 /** Problems from an engine error, or one describing any other error. */
