@@ -7,6 +7,7 @@ import { engine, loadEngine, problemsOf, problemText, type Design, type PresetIn
 import { inputText, parseNumber } from "./format";
 import { drawLegend, drawLineShape, drawSensitivity, drawSigma, watchWidth } from "./plots";
 import { drawDetails, drawTable } from "./results";
+import { mountStudy } from "./studyview";
 import {
   MAX_DESIGNS,
   MAX_FILE_BYTES,
@@ -110,6 +111,7 @@ class App {
     for (const el of [e.sigma, e.g, e.line]) watchWidth(el, () => this.requestRedraw());
     this.editor.render(this.selected());
     this.requestAll();
+    mountStudy(byId("study"), { slots: () => this.state.slots, selected: () => this.selected(), apply: (s, d) => ((s.design = d), this.restructured(s)) });
   }
 
   // ----- state ---------------------------------------------------------------------------
