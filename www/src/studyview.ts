@@ -7,7 +7,7 @@ import { clear, h, s } from "./dom";
 import { jobs, problemsOf, problemText, type Design, type Problem } from "./engine";
 import { Cancelled, JobFailed } from "./jobs";
 import { appendNumber, numberText, parseNumber } from "./format";
-import { drawLogPlot, type LogSeries } from "./plots";
+import { drawLegend, drawLogPlot, type LogSeries } from "./plots";
 import { joinPath, type Key } from "./paths";
 import type { Slot } from "./workspace";
 
@@ -24,15 +24,9 @@ const MAX_PATHS = 80;
 /** Points evaluated between progress reports in the worker. */
 const MAP_CHUNK = 25;
 const BAND_CHUNK = 8;
+/** Sweeps with more evaluations than this (points times designs) go to the worker. */
+const SYNC_SWEEP_MAX = 800;
 
-const MECHANISM: Record<string, string> = {
-  projection_noise: "quantum projection noise",
-  dead_time: "dead time",
-  laser_coherence: "laser coherence",
-  lifetime: "the excited-state lifetime",
-  dick_effect: "the Dick effect",
-  laser_noise: "the laser noise the servo leaves",
-};
 
 /** Numeric leaves of a design as the core names them ("sequence.segments[2].duration_s"). */
 function numericPaths(v: unknown, keys: Key[] = [], out: string[] = []): string[] {
@@ -64,6 +58,17 @@ function read(el: HTMLInputElement, path: string, problems: Problem[], integer =
   if (r.ok) return r.value;
   problems.push({ path, value: JSON.stringify(el.value), allowed: r.allowed });
   return NaN;
+}
+
+/** Runs `f` (a request check); shows the engine's problems in `el` and returns false if it throws. */
+function checked(el: HTMLElement, f: () => void): boolean {
+  try {
+    f();
+    return true;
+  } catch (err) {
+    showProblems(el, problemsOf(err));
+    return false;
+  }
 }
 
 function showProblems(el: HTMLElement, problems: Problem[]): void {
@@ -125,7 +130,7 @@ export function mountStudy(root: HTMLElement, host: StudyHost): void {
     row(o.probe_shape === "ramsey_free_time" ? "best free-evolution time" : "best pulse time", (dd) => appendNumber(dd, o.probe_time_s, 4, "s"), "probe");
     if (o.per_rounds.length > 0) row("detection rounds", (dd) => dd.append(String(o.rounds)), "rounds");
     row(`σ_y at τ = ${numberText(o.tau_s)} s`, (dd) => appendNumber(dd, o.sigma, 4), "sigma");
-    row("set by", (dd) => dd.append(MECHANISM[o.mechanism] ?? o.mechanism), "mechanism");
+    row("set by", (dd) => dd.append(o.mechanism.replace(/_/g, " ").replace("dick", "Dick")), "mechanism");
     row("searched", (dd) => {
       appendNumber(dd, o.range_s[0], 3, "s");
       dd.append(" to ");
@@ -165,7 +170,7 @@ export function mountStudy(root: HTMLElement, host: StudyHost): void {
     ["dick_share", "Dick share at 1 s"],
     ["dick_1s", "Dick effect at 1 s"],
     ["projection_1s", "projection noise at 1 s"],
-    ["probe_phase_rms_rad", "laser phase over the probe (rad rms)"],
+    ["probe_phase_rms_rad", "probe phase (rad rms)"],
     ["cycle_time_s", "cycle time"],
   ]);
   const param = num("1000", "output-param");
@@ -181,7 +186,7 @@ export function mountStudy(root: HTMLElement, host: StudyHost): void {
   root.append(
     h("h3", { text: "Sweeps and maps over the designs" }),
     x.row,
-    h("div", { class: "study-row" }, h("label", { class: "study-check" }, useMap, " map over a second field (selected design only, in the background)")),
+    h("div", { class: "study-row" }, h("label", { class: "study-check" }, useMap, " map over a second field (selected design)")),
     y.row,
     h("div", { class: "study-row" }, field("output", output), paramLabel, sweepRun, sweepCancel, progress),
     sweepErr,
@@ -225,8 +230,13 @@ export function mountStudy(root: HTMLElement, host: StudyHost): void {
     if (useMap.checked) request.y = readAxis(y, "y", problems);
     showProblems(sweepErr, problems);
     if (problems.length > 0) return;
+    const slots = host.slots();
+    if (!request.y && request.x.points * slots.length > SYNC_SWEEP_MAX) {
+      if (!checked(sweepErr, () => new cw.MapRun(slots.map((s) => s.design), request).free())) return;
+      void background(sweepRun, sweepCancel, progress, sweepErr, "map", { designs: slots.map((s) => s.design), request }, MAP_CHUNK, (r) => drawSweep(sweepOut, r as cw.GridResult, slots));
+      return;
+    }
     if (!request.y) {
-      const slots = host.slots();
       try {
         performance.mark("cw-sweep-start");
         const r = cw.sweep(slots.map((s) => s.design), request);
@@ -242,18 +252,13 @@ export function mountStudy(root: HTMLElement, host: StudyHost): void {
     const sel = host.selected();
     if (!sel) return;
     // Check the request at once so a bad field shows without starting the worker.
-    try {
-      new cw.MapRun([sel.design], request).free();
-    } catch (err) {
-      showProblems(sweepErr, problemsOf(err));
-      return;
-    }
+    if (!checked(sweepErr, () => new cw.MapRun([sel.design], request).free())) return;
     void background(sweepRun, sweepCancel, progress, sweepErr, "map", { designs: [sel.design], request }, MAP_CHUNK, (r) => drawMap(sweepOut, r as cw.GridResult));
   });
 
   // ----- bands ---------------------------------------------------------------------------
   const bandPath = h("select", { attrs: { name: "band-path" } });
-  const dist = choice("distribution", [["uniform", "uniform (low, high)"], ["log_uniform", "log-uniform (low, high)"], ["normal", "normal (mean, sd)"], ["log_normal", "log-normal (median, σ of ln)"]]);
+  const dist = choice("distribution", [["uniform", "uniform (low, high)"], ["log_uniform", "log-uniform (low, high)"], ["normal", "normal (mean, sd)"], ["log_normal", "log-normal (median, σ ln)"]]);
   const pa = num("1", "band-a");
   const pb = num("3", "band-b");
   const samples = num("200", "band-samples");
@@ -284,12 +289,7 @@ export function mountStudy(root: HTMLElement, host: StudyHost): void {
     const distribution: cw.Distribution =
       k === "normal" ? { kind: "normal", mean: a, sd: b } : k === "log_normal" ? { kind: "log_normal", median: a, sigma_ln: b } : { kind: k as "uniform" | "log_uniform", low: a, high: b };
     const request: cw.BandRequest = { uncertain: [{ path: bandPath.value, distribution }], samples: n, quantiles: [0.16, 0.5, 0.84] };
-    try {
-      new cw.BandRun(sel.design, request).free();
-    } catch (err) {
-      showProblems(bandErr, problemsOf(err));
-      return;
-    }
+    if (!checked(bandErr, () => new cw.BandRun(sel.design, request).free())) return;
     const colour = sel.colour;
     void background(bandRun, bandCancel, bandProgress, bandErr, "bands", { design: sel.design, request }, BAND_CHUNK, (r) => drawBands(bandOut, r as cw.BandResult, colour, sel.design.name));
   });
@@ -325,10 +325,6 @@ async function background(run: HTMLButtonElement, cancel: HTMLButtonElement, bar
   }
 }
 
-function outputTitle(r: cw.GridResult): string {
-  return r.output_label;
-}
-
 function drawSweep(el: HTMLElement, r: cw.GridResult, slots: Slot[]): void {
   clear(el);
   const series: LogSeries[] = r.series.map((sr, i) => ({
@@ -340,7 +336,10 @@ function drawSweep(el: HTMLElement, r: cw.GridResult, slots: Slot[]): void {
   }));
   const plot = h("div", { class: "plot study-sweep" });
   el.append(plot);
-  drawLogPlot(plot, { label: `${outputTitle(r)} against ${r.x_path} for each design`, xTitle: r.x_path, yTitle: outputTitle(r), series, empty: "No point of the sweep has a positive value." });
+  drawLogPlot(plot, { label: `${r.output_label} against ${r.x_path} for each design`, xTitle: r.x_path, yTitle: r.output_label, series, empty: "No point of the sweep has a positive value." });
+  const legend = h("div", { class: "legend" });
+  el.append(legend);
+  drawLegend(legend, series.map((sr) => ({ colour: sr.colour, name: sr.name, stale: false })));
   const holes = r.series.flatMap((sr) => sr.holes.slice(0, 3).map((hl) => `${sr.design_name} at ${r.x_path} = ${numberText(r.x[hl.index])}: ${hl.reason}`));
   for (const t of holes) el.append(h("p", { class: "study-hole", text: t }));
 }
@@ -412,7 +411,7 @@ function drawMap(el: HTMLElement, r: cw.GridResult): void {
   svg.append(
     s("rect", { x: L, y: T, width: W - L - R, height: H - T - B, class: "study-frame" }),
     text(L, H - B + 16, numberText(r.x[0])),
-    text(W - R, H - B + 16, numberText(r.x[nx - 1])),
+    text(W - R, H - B + 16, numberText(r.x[nx - 1]), "end"),
     text((L + W - R) / 2, H - 8, r.x_path),
     text(L - 4, H - B, numberText(r.y[0]), "end"),
     text(L - 4, T + 10, numberText(r.y[ny - 1]), "end"),
@@ -422,12 +421,13 @@ function drawMap(el: HTMLElement, r: cw.GridResult): void {
   svg.append(ylab);
   const key = h("div", { class: "study-key" });
   if (finite.length > 0) {
-    const stops = SCALE.map((c, i) => `${c} ${((i / (SCALE.length - 1)) * 100).toFixed(0)}%`).join(", ");
-    const bar = h("span", { class: "study-key-bar", attrs: { style: `background: linear-gradient(to right, ${stops})` } });
+    // The bar's gradient (the same nine anchors) is in study.css: inline styles are not allowed.
+    const bar = h("span", { class: "study-key-bar", attrs: { "aria-hidden": "true" } });
     const back = (t: number): number => (logv ? 10 ** t : t);
-    key.append(h("span", { text: `${r.output_label}: ` }), h("span", { text: numberText(back(lo)) }), bar, h("span", { text: numberText(back(hi)) }), h("span", { text: logv ? " (log scale); lines: contours; grey: holes" : "; lines: contours; grey: holes" }));
+    key.append(h("span", { text: `${r.output_label}: ` }), h("span", { text: numberText(back(lo)) }), bar, h("span", { text: numberText(back(hi)) }), h("span", { text: `${logv ? " (log)" : ""}; lines: contours; grey: holes` }));
   }
-  el.append(h("p", { class: "study-caption", text: `${sr.design_name}: ${nx} × ${ny} points, ${sr.holes.length} holes` }), svg, key);
+  const levels = sr.contours.map((c) => numberText(c.level, 2)).join(", ");
+  el.append(h("p", { class: "study-caption", text: `${sr.design_name}: ${nx} × ${ny} points, ${sr.holes.length} holes${levels ? `; contours at ${levels}` : ""}` }), svg, key);
 }
 
 function drawBands(el: HTMLElement, r: cw.BandResult, colour: number, name: string): void {
