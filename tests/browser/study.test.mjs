@@ -171,6 +171,11 @@ test("bands: 16-84 % band in the worker; table values equal the engine's", async
     await page.click(".study-row >> text=Run >> nth=1");
     await page.waitForSelector(".study-table tbody tr", { timeout: 30_000 });
     assert.equal(await page.locator(".study-band path.band").count(), 1);
+    // The median curve has one vertex per averaging time where the engine gives a median.
+    const d = await page.getAttribute(".study-band g.design:first-of-type path.curve", "d");
+    assert.equal((d.match(/[ML]/g) ?? []).length, want.curve[1].filter((v) => v !== null && v > 0).length);
+    const band = await page.getAttribute(".study-band path.band", "d");
+    assert.equal((band.match(/[ML]/g) ?? []).length, 2 * want.curve[0].filter((v, i) => v > 0 && want.curve[2][i] > 0).length);
     for (const sc of want.scalars) {
       const cells = await page.$$eval(`.study-table tr[data-name="${sc.name}"] td`, (tds) => tds.map((t) => t.textContent));
       const vals = [sc.nominal, ...sc.values];
@@ -179,7 +184,7 @@ test("bands: 16-84 % band in the worker; table values equal the engine's", async
         else near(cells[k], vals[k], `${sc.name} column ${k}`);
       }
     }
-    assert.match(await page.textContent(".study-band + .study-caption"), /latin hypercube/);
+    assert.match(await page.textContent(".study-band + .study-caption"), /Latin hypercube sampling/);
     // Bad input: low above high is the engine's problem.
     await page.fill('input[name="band-a"]', "5");
     await page.click(".study-row >> text=Run >> nth=1");

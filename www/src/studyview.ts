@@ -434,7 +434,7 @@ function drawBands(el: HTMLElement, r: cw.BandResult, colour: number, name: stri
   clear(el);
   const qi = (q: number): number => r.quantiles.findIndex((x) => Math.abs(x - q) < 1e-12);
   const [i16, i50, i84] = [qi(0.16), qi(0.5), qi(0.84)];
-  const col = (i: number): number[] => r.curve.map((row) => row[i] ?? NaN);
+  const col = (k: number): number[] => (r.curve[k] ?? []).map((v) => v ?? NaN);
   const plot = h("div", { class: "plot study-band" });
   el.append(plot);
   drawLogPlot(plot, {
@@ -447,7 +447,7 @@ function drawBands(el: HTMLElement, r: cw.BandResult, colour: number, name: stri
     ],
     empty: "No sample gave a curve.",
   });
-  el.append(h("p", { class: "study-caption", text: `${r.method}: ${r.samples} samples (${r.sampling.replace(/_/g, " ")}, seed ${r.seed}), ${r.failed.length} left out as invalid. Band: 16–84 %; solid: median, dashed: nominal.` }));
+  el.append(h("p", { class: "study-caption", text: `${r.method} Band: 16–84 %; solid: median; dashed: nominal design.` }));
   const table = h("table", { class: "study-table" }, h("thead", {}, h("tr", {}, ...["quantity", "nominal", "16 %", "median", "84 %"].map((t) => h("th", { text: t, attrs: { scope: "col" } })))));
   const body = h("tbody");
   for (const sc of r.scalars) {
