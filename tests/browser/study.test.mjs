@@ -32,7 +32,7 @@ test("optimum: the shown probe time and sigma equal the engine's; apply edits th
     const page = b.page;
     await openPage(page);
     await page.fill('input[name="optimum-tau"]', "1000");
-    await page.click("text=Find the optimum probe time");
+    await page.click("text=Find the optimum");
     await page.waitForSelector('.study-facts dd[data-key="probe"]');
     near(await page.textContent('.study-facts dd[data-key="probe"]'), want.probe_time_s, "probe time");
     near(await page.textContent('.study-facts dd[data-key="sigma"]'), want.sigma, "sigma at the optimum");
@@ -42,6 +42,11 @@ test("optimum: the shown probe time and sigma equal the engine's; apply edits th
     await waitForUpdates(page, n + 1);
     const stored = await page.evaluate(() => JSON.parse(localStorage.getItem("clockwright.workspace")));
     assert.deepEqual(stored.designs[0].design, want.design, "apply stores the optimum design");
+    // Bad input: the engine's problem (from the worker) names the field; the result stays.
+    await page.fill('input[name="optimum-tau"]', "-5");
+    await page.click("text=Find the optimum");
+    await page.waitForSelector(".study-error >> nth=0 >> text=tau_s");
+    assert.equal(await page.locator('.study-facts dd[data-key="probe"]').count(), 1);
     assert.deepEqual(b.errors, []);
   } finally {
     await b.close();

@@ -111,7 +111,7 @@ class App {
     for (const el of [e.sigma, e.g, e.line]) watchWidth(el, () => this.requestRedraw());
     this.editor.render(this.selected());
     this.requestAll();
-    mountStudy(byId("study"), { slots: () => this.state.slots, selected: () => this.selected(), apply: (s, d) => ((s.design = d), this.restructured(s)) });
+    mountStudy(byId("study"), { slots: () => this.state.slots, selected: () => this.selected(), apply: (s, d) => ((s.design = d), s.drafts.clear(), this.restructured(s)) });
   }
 
   // ----- state ---------------------------------------------------------------------------

@@ -31,7 +31,9 @@ const SYNC_SWEEP_MAX = 800;
 /** Numeric leaves of a design as the core names them ("sequence.segments[2].duration_s"). */
 function numericPaths(v: unknown, keys: Key[] = [], out: string[] = []): string[] {
   if (out.length >= MAX_PATHS) return out;
-  if (typeof v === "number") out.push(joinPath(keys));
+  if (typeof v === "number") {
+    if (keys[0] !== "schema_version") out.push(joinPath(keys));
+  }
   else if (Array.isArray(v)) v.forEach((x, i) => numericPaths(x, [...keys, i], out));
   else if (v && typeof v === "object") for (const [k, x] of Object.entries(v)) numericPaths(x, [...keys, k], out);
   return out;
@@ -96,12 +98,16 @@ export function mountStudy(root: HTMLElement, host: StudyHost): void {
   // ----- optimum -------------------------------------------------------------------------
   const optTau = num("1000", "optimum-tau");
   const optRounds = num("", "optimum-rounds");
-  const optRun = button("Find the optimum probe time");
+  const optRun = button("Find the optimum");
+  const optCancel = button("Cancel");
+  optCancel.hidden = true;
+  const optProgress = h("progress", { attrs: { "aria-label": "optimum search" } });
+  optProgress.hidden = true;
   const optErr = h("div", { class: "study-error", attrs: { role: "alert" } });
   const optOut = h("div", { class: "study-optimum", attrs: { "aria-live": "polite" } });
   root.append(
-    h("h3", { text: "Optimum probe time of the selected design" }),
-    h("div", { class: "study-row" }, field("at τ (s)", optTau), field("detection rounds up to (optional)", optRounds), optRun),
+    h("h3", { text: "Optimum probe time (selected design)" }),
+    h("div", { class: "study-row" }, field("at τ (s)", optTau), field("detection rounds up to (optional)", optRounds), optRun, optCancel, optProgress),
     optErr,
     optOut,
   );
@@ -113,13 +119,12 @@ export function mountStudy(root: HTMLElement, host: StudyHost): void {
     const rounds = optRounds.value.trim() === "" ? null : read(optRounds, "max_rounds", problems, true);
     showProblems(optErr, problems);
     if (problems.length > 0) return;
-    let o: cw.Optimum;
-    try {
-      o = cw.optimum(slot.design, { tau_s: tau, max_rounds: rounds });
-    } catch (err) {
-      showProblems(optErr, problemsOf(err));
-      return;
-    }
+    // In the worker: a search over many detection rounds takes seconds.
+    const design = structuredClone(slot.design);
+    void background(optRun, optCancel, optProgress, optErr, "optimum", { design, request: { tau_s: tau, max_rounds: rounds } }, 1, (r) => showOptimum(slot, r as cw.Optimum));
+  });
+  const showOptimum = (slot: Slot, o: cw.Optimum): void => {
+    clear(optErr);
     clear(optOut);
     const dl = h("dl", { class: "study-facts" });
     const row = (term: string, fill: (dd: HTMLElement) => void, key: string): void => {
@@ -144,7 +149,7 @@ export function mountStudy(root: HTMLElement, host: StudyHost): void {
       apply.textContent = "Applied";
     });
     optOut.append(dl, h("p", { text: o.explanation }), apply);
-  });
+  };
 
   // ----- sweeps and maps -----------------------------------------------------------------
   const axis = (name: string): { path: HTMLSelectElement; from: HTMLInputElement; to: HTMLInputElement; points: HTMLInputElement; spacing: HTMLSelectElement; row: HTMLElement } => {
@@ -184,7 +189,7 @@ export function mountStudy(root: HTMLElement, host: StudyHost): void {
   const sweepOut = h("div", { class: "study-plot", attrs: { "aria-live": "polite" } });
   y.row.hidden = true;
   root.append(
-    h("h3", { text: "Sweeps and maps over the designs" }),
+    h("h3", { text: "Sweeps and maps" }),
     x.row,
     h("div", { class: "study-row" }, h("label", { class: "study-check" }, useMap, " map over a second field (selected design)")),
     y.row,
@@ -253,7 +258,7 @@ export function mountStudy(root: HTMLElement, host: StudyHost): void {
     if (!sel) return;
     // Check the request at once so a bad field shows without starting the worker.
     if (!checked(sweepErr, () => new cw.MapRun([sel.design], request).free())) return;
-    void background(sweepRun, sweepCancel, progress, sweepErr, "map", { designs: [sel.design], request }, MAP_CHUNK, (r) => drawMap(sweepOut, r as cw.GridResult));
+    void background(sweepRun, sweepCancel, progress, sweepErr, "map", { designs: [sel.design], request }, MAP_CHUNK, (r) => drawMap(sweepOut, r as cw.GridResult, request.x.spacing === "log", request.y?.spacing === "log"));
   });
 
   // ----- bands ---------------------------------------------------------------------------
@@ -270,7 +275,7 @@ export function mountStudy(root: HTMLElement, host: StudyHost): void {
   const bandErr = h("div", { class: "study-error", attrs: { role: "alert" } });
   const bandOut = h("div", { class: "study-plot", attrs: { "aria-live": "polite" } });
   root.append(
-    h("h3", { text: "Uncertainty bands of the selected design" }),
+    h("h3", { text: "Uncertainty bands (selected design)" }),
     h("div", { class: "study-row" }, field("uncertain field", bandPath), field("distribution", dist), field("first", pa), field("second", pb), field("samples", samples), bandRun, bandCancel, bandProgress),
     bandErr,
     bandOut,
@@ -309,14 +314,15 @@ async function background(run: HTMLButtonElement, cancel: HTMLButtonElement, bar
   run.disabled = true;
   cancel.hidden = false;
   bar.hidden = false;
-  bar.value = 0;
+  if (chunk > 1) bar.value = 0;
   performance.mark(`cw-${kind}-start`);
   try {
     const r = await j.run(kind, input, chunk, (f) => (bar.value = f));
     performance.measure(`cw-${kind}`, `cw-${kind}-start`);
+    clear(err);
     done(r);
   } catch (e) {
-    if (e instanceof Cancelled) showProblems(err, [{ path: kind === "map" ? "map" : "bands", value: "", allowed: "cancelled; the last result stays" }]);
+    if (e instanceof Cancelled) showProblems(err, [{ path: kind, value: "", allowed: "cancelled; the last result stays" }]);
     else showProblems(err, e instanceof JobFailed ? e.problems : problemsOf(e));
   } finally {
     run.disabled = false;
@@ -344,7 +350,7 @@ function drawSweep(el: HTMLElement, r: cw.GridResult, slots: Slot[]): void {
   for (const t of holes) el.append(h("p", { class: "study-hole", text: t }));
 }
 
-function drawMap(el: HTMLElement, r: cw.GridResult): void {
+function drawMap(el: HTMLElement, r: cw.GridResult, xLog: boolean, yLog: boolean): void {
   clear(el);
   const sr = r.series[0];
   if (!sr) return;
@@ -361,15 +367,14 @@ function drawMap(el: HTMLElement, r: cw.GridResult): void {
   const B = 46;
   const T = 10;
   const R = 10;
-  const ax = (vals: number[], a: number, b: number): ((v: number) => number) => {
-    const log = vals.length > 1 && vals[0] > 0 && Math.abs(vals[2] / vals[1] - vals[1] / vals[0]) < 1e-6 * (vals[1] / vals[0]) && vals[1] - vals[0] !== vals[2] - vals[1];
+  const ax = (vals: number[], log: boolean, a: number, b: number): ((v: number) => number) => {
     const f = (v: number): number => (log ? Math.log10(v) : v);
     const f0 = f(vals[0]);
     const f1 = f(vals[vals.length - 1]);
     return (v) => a + ((f(v) - f0) / (f1 - f0 || 1)) * (b - a);
   };
-  const X = ax(r.x, L, W - R);
-  const Y = ax(r.y, H - B, T);
+  const X = ax(r.x, xLog, L, W - R);
+  const Y = ax(r.y, yLog, H - B, T);
   // Cell edges halfway between axis values (in the axis's own scale).
   const edges = (vals: number[], f: (v: number) => number): number[] => {
     const p = vals.map(f);

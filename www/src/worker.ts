@@ -54,6 +54,7 @@ function chunked(run: { advance(n: number): cw.Progress; result(): unknown; free
 /** The job kinds the worker knows. */
 const kinds: Record<string, (input: Record<string, unknown>) => Runner> = {
   evaluate: (input) => oneCall(() => cw.evaluate(input.design as cw.Design, (input.options ?? {}) as cw.EvalOptions)),
+  optimum: (input) => oneCall(() => cw.optimum(input.design as cw.Design, input.request as cw.OptimumRequest)),
   map: (input) => chunked(new cw.MapRun(input.designs as cw.Design[], input.request as cw.GridRequest)),
   bands: (input) => chunked(new cw.BandRun(input.design as cw.Design, input.request as cw.BandRequest)),
 };
