@@ -144,14 +144,14 @@ test("map: runs in the worker with progress, matches the engine, and can be canc
     assert.equal(await page.locator(".study-contours g").count(), want.series[0].contours.length);
     await page.screenshot({ path: join(await artifactsDir(), "study-map.png"), fullPage: true });
     // A large map: progress shows, Cancel stops it, the last map stays.
-    await page.fill('input[name="x-points"]', "60");
-    await page.fill('input[name="y-points"]', "60");
+    await page.fill('input[name="x-points"]', "100");
+    await page.fill('input[name="y-points"]', "100");
     await page.click(".study-row >> text=Run >> nth=0");
     await page.waitForFunction(() => {
-      const p = document.querySelector(".study progress");
+      const p = document.querySelector('.study progress[aria-label="map progress"]');
       return p && !p.hidden && p.value > 0;
     }, null, { timeout: 30_000 });
-    await page.click(".study-row >> text=Cancel >> nth=0");
+    await page.click(".study-row >> text=Cancel >> nth=1");
     await page.waitForSelector(".study-error >> text=cancelled");
     assert.equal(await page.locator(".study-map rect[fill]").count() + (await page.locator(".study-map .study-hole-cell").count()), 80, "the last map stays");
     assert.deepEqual(b.errors, []);
