@@ -126,7 +126,7 @@ export const problems: Problem[] = ${JSON.stringify(v.problems)};
     await writeFile(join(dir, "shapes.ts"), ts);
     await writeFile(
       join(dir, "tsconfig.json"),
-      JSON.stringify({ compilerOptions: { strict: true, noEmit: true, module: "NodeNext", moduleResolution: "NodeNext", target: "ES2022", types: [], skipLibCheck: false }, files: ["shapes.ts"] }),
+      JSON.stringify({ compilerOptions: { strict: true, noEmit: true, module: "NodeNext", moduleResolution: "NodeNext", target: "ES2022", lib: ["ES2022", "DOM", "ESNext.Disposable"], types: [], skipLibCheck: false }, files: ["shapes.ts"] }),
     );
     try {
       await run(process.execPath, [join(ROOT, "node_modules/typescript/bin/tsc"), "-p", "tsconfig.json"], { cwd: dir });

@@ -40,7 +40,7 @@ export async function loadEngine(doc: Document): Promise<void> {
   if (typeof DecompressionStream === "undefined") {
     throw new Error("this browser lacks DecompressionStream; use a current Chromium, Firefox or Safari");
   }
-  const stream = new Blob([decodeBase64(text)]).stream().pipeThrough(new DecompressionStream("deflate"));
+  const stream = new Blob([decodeBase85(text)]).stream().pipeThrough(new DecompressionStream("deflate"));
   const bytes = await new Response(stream).arrayBuffer();
   compiled = await WebAssembly.compile(bytes);
   await init({ module_or_path: compiled });
@@ -51,6 +51,35 @@ export async function loadEngine(doc: Document): Promise<void> {
 let compiled: WebAssembly.Module | null = null;
 let workerSource = "";
 let background: Jobs | null = null;
+
+const BASE85 = "!#()*+,-./0123456789:;=?@ABCDEFGHIJKLMNOPQRSTUVWXYZ[]^_abcdefghijklmnopqrstuvwxyz{|}~";
+
+/** Decodes the module block: "<byte count>:" then five base-85 characters per four bytes (tools/pagebuild). */
+export function decodeBase85(text: string): Uint8Array<ArrayBuffer> {
+  const colon = text.indexOf(":");
+  const n = Number(text.slice(0, colon));
+  const body = text.slice(colon + 1);
+  if (colon < 1 || !Number.isInteger(n) || n < 0 || body.length % 5 !== 0 || Math.ceil(n / 4) * 5 !== body.length) {
+    throw new Error("the engine module block is damaged (its length does not match)");
+  }
+  const index = new Int16Array(128).fill(-1);
+  for (let i = 0; i < BASE85.length; i++) index[BASE85.charCodeAt(i)] = i;
+  const out = new Uint8Array((body.length / 5) * 4);
+  for (let g = 0, j = 0; g < body.length; g += 5, j += 4) {
+    let v = 0;
+    for (let k = 0; k < 5; k++) {
+      const c = body.charCodeAt(g + k);
+      const d = c < 128 ? index[c] : -1;
+      if (d < 0) throw new Error("the engine module block is damaged (a character outside its alphabet)");
+      v = v * 85 + d;
+    }
+    out[j] = (v >>> 24) & 255;
+    out[j + 1] = (v >>> 16) & 255;
+    out[j + 2] = (v >>> 8) & 255;
+    out[j + 3] = v & 255;
+  }
+  return out.slice(0, n);
+}
 
 function decodeBase64(text: string): Uint8Array<ArrayBuffer> {
   const raw = atob(text);

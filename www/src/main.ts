@@ -9,6 +9,7 @@ import { mountPairView, type PairView } from "./pairview";
 import { drawLegend, drawLineShape, drawSensitivity, drawSigma, watchWidth } from "./plots";
 import { drawDetails, drawTable } from "./results";
 import { mountSimulation } from "./simview";
+import { mountStudy } from "./studyview";
 import {
   MAX_DESIGNS,
   MAX_FILE_BYTES,
@@ -116,6 +117,7 @@ class App {
     this.sim = mountSimulation(byId("sim-view"), { selected: () => this.selected(), slots: () => this.state.slots });
     this.editor.render(this.selected());
     this.requestAll();
+    mountStudy(byId("study"), { slots: () => this.state.slots, selected: () => this.selected(), apply: (s, d) => ((s.design = d), s.drafts.clear(), this.restructured(s)) });
   }
 
   // ----- state ---------------------------------------------------------------------------

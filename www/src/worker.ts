@@ -46,12 +46,32 @@ function simulation(input: Record<string, unknown>): Runner {
   };
 }
 
+/** A chunked engine run (MapRun, BandRun): fraction = done / total; freed when finished. */
+function chunked(run: { advance(n: number): cw.Progress; result(): unknown; free(): void }): Runner {
+  return {
+    advance(chunk) {
+      const p = run.advance(chunk);
+      return p.finished ? 1 : p.done / Math.max(p.total, 1);
+    },
+    finish() {
+      try {
+        return run.result();
+      } finally {
+        run.free();
+      }
+    },
+  };
+}
+
 /** The job kinds the worker knows. */
 const kinds: Record<string, (input: Record<string, unknown>) => Runner> = {
   evaluate: (input) => oneCall(() => cw.evaluate(input.design as cw.Design, (input.options ?? {}) as cw.EvalOptions)),
   reach: (input) => oneCall(() => cw.reach(input.pair as cw.PairDocument, (input.options ?? {}) as Partial<cw.ReachOptions>)),
   simulate: (input) => simulation(input),
   measured: (input) => oneCall(() => cw.importMeasured(String(input.text ?? ""), (input.options ?? null) as Partial<cw.EstimateOptions> | null)),
+  optimum: (input) => oneCall(() => cw.optimum(input.design as cw.Design, input.request as cw.OptimumRequest)),
+  map: (input) => chunked(new cw.MapRun(input.designs as cw.Design[], input.request as cw.GridRequest)),
+  bands: (input) => chunked(new cw.BandRun(input.design as cw.Design, input.request as cw.BandRequest)),
 };
 
 /** Problems from an engine error, or one describing any other error. */
