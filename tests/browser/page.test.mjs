@@ -196,7 +196,8 @@ test("keyboard: controls are reachable by Tab, operable, labelled, with a visibl
     assert.deepEqual(unlabelled, [], "every input has a label");
     const seen = new Set();
     let dupFocused = false;
-    for (let i = 0; i < 40 && !dupFocused; i++) {
+    // The pair, simulation and study cards come before the design list in tab order.
+    for (let i = 0; i < 200 && !dupFocused; i++) {
       await page.keyboard.press("Tab");
       const id = await page.evaluate(() => document.activeElement?.id || document.activeElement?.dataset?.path || document.activeElement?.tagName);
       seen.add(id);
@@ -210,7 +211,7 @@ test("keyboard: controls are reachable by Tab, operable, labelled, with a visibl
     await waitForUpdates(page, n + 1);
     assert.equal((await readTable(page)).names.length, 5, "Enter on Duplicate adds a design");
     let reachedEditor = false;
-    for (let i = 0; i < 60 && !reachedEditor; i++) {
+    for (let i = 0; i < 300 && !reachedEditor; i++) {
       await page.keyboard.press("Tab");
       reachedEditor = await page.evaluate(() => document.activeElement?.dataset?.path === "atoms.count");
     }

@@ -57,6 +57,17 @@ export class Jobs {
     return this.current !== null;
   }
 
+  private watchers = new Set<() => void>();
+
+  /** Calls `f` whenever a job starts or ends (views enable their run buttons again). */
+  watch(f: () => void): void {
+    this.watchers.add(f);
+  }
+
+  private changed(): void {
+    for (const f of this.watchers) f();
+  }
+
   /** Runs `kind` on `input` in chunks of `chunk` units; rejects with Cancelled or JobFailed. */
   async run(kind: string, input: Record<string, unknown>, chunk: number, progress: (fraction: number) => void = () => {}): Promise<unknown> {
     if (this.current) throw new Error("a job is already running; cancel it first");
@@ -67,6 +78,7 @@ export class Jobs {
     });
     const current: Current = { id, progress, ...settle };
     this.current = current;
+    this.changed();
     try {
       await this.start();
       // Cancelled while the worker started: the promise has already been rejected.
@@ -85,6 +97,7 @@ export class Jobs {
     const c = this.current;
     this.current = null;
     c?.reject(new Cancelled());
+    if (c) this.changed();
   }
 
   private start(): Promise<void> {
@@ -107,6 +120,7 @@ export class Jobs {
         const c = this.current;
         this.current = null;
         c?.reject(err);
+        if (c) this.changed();
       };
     });
     w.postMessage({ type: "init", module: this.module } satisfies JobRequest);
@@ -128,5 +142,6 @@ export class Jobs {
     if (!c || c.id !== id) return;
     this.current = null;
     f(c);
+    this.changed();
   }
 }

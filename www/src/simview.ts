@@ -253,7 +253,7 @@ export function mountSimulation(root: HTMLElement, host: SimHost): { refresh(): 
   watchWidth(el.plot, draw);
   draw();
 
-  return {
+  const view = {
     refresh() {
       showHint();
       const sel = host.selected();
@@ -266,6 +266,13 @@ export function mountSimulation(root: HTMLElement, host: SimHost): { refresh(): 
       }
     },
   };
+  // The run button follows the worker: free again when another view's job ends.
+  try {
+    jobs().watch(() => view.refresh());
+  } catch {
+    // No worker in this page: the button stays as refresh() sets it.
+  }
+  return view;
 }
 
 function jobs_busy(): boolean {
