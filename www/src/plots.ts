@@ -290,24 +290,30 @@ export function drawSigma(container: HTMLElement, sets: CurveSet[], target: numb
   if (present.length !== wanted.length || present.some((el, i) => el !== wanted[i])) plot.append(...wanted);
 }
 
-/** Draws the grid, axes, titles, clip and target line of the Allan-deviation plot. */
-function sigmaFrame(container: HTMLElement, b: Box, label: string, frame: string, xMin: number, xMax: number, yMin: number, yMax: number, target: number | null): SigmaView {
+/**
+ * A fresh log-log frame in `container`: decade grid, log axes, titles and a clipped group for
+ * the curves (`plot`).
+ */
+function logFrame(container: HTMLElement, b: Box, label: string, [xMin, xMax]: [number, number], [yMin, yMax]: [number, number], xTitle: string, yTitle: string) {
   const svg = svgFor(container, b, label);
   const x = scaleLog().domain([xMin, xMax]).range([b.left, b.width - b.right]);
   const y = scaleLog().domain([yMin, yMax]).range([b.height - b.bottom, b.top]);
-
   const root = select(svg);
-  // Decade grid.
   const grid = root.append("g").attr("class", "grid");
   for (const t of decades(xMin, xMax)) grid.append("line").attr("x1", x(t)).attr("x2", x(t)).attr("y1", b.top).attr("y2", b.height - b.bottom);
   for (const v of decades(yMin, yMax)) grid.append("line").attr("x1", b.left).attr("x2", b.width - b.right).attr("y1", y(v)).attr("y2", y(v));
-
   logAxis(root.append("g").attr("class", "axis x").attr("transform", `translate(0 ${b.height - b.bottom})`), (sc) => axisBottom(sc), x, xMin, xMax);
   logAxis(root.append("g").attr("class", "axis y").attr("transform", `translate(${b.left} 0)`), (sc) => axisLeft(sc), y, yMin, yMax);
-  axisTitle(svg, b, "averaging time τ (s)", "Allan deviation σ_y(τ)");
-
+  axisTitle(svg, b, xTitle, yTitle);
   const clip = clipRect(svg, b);
-  const plot = root.append("g").attr("clip-path", `url(#${clip})`);
+  const plot = root.append("g").attr("clip-path", `url(#${clip})`).node()!;
+  return { svg, x, y, plot };
+}
+
+/** Draws the grid, axes, titles, clip and target line of the Allan-deviation plot. */
+function sigmaFrame(container: HTMLElement, b: Box, label: string, frame: string, xMin: number, xMax: number, yMin: number, yMax: number, target: number | null): SigmaView {
+  const { svg, x, y, plot: plotNode } = logFrame(container, b, label, [xMin, xMax], [yMin, yMax], "averaging time τ (s)", "Allan deviation σ_y(τ)");
+  const plot = select(plotNode);
   if (target !== null && positive(target) && target >= yMin && target <= yMax) {
     plot.append("line").attr("class", "target-line").attr("x1", b.left).attr("x2", b.width - b.right).attr("y1", y(target)).attr("y2", y(target));
     const label = s("text", { class: "target-label", x: b.left + 6, y: y(target) - 6 });
@@ -584,18 +590,7 @@ export function drawLogPlot(container: HTMLElement, spec: LogPlotSpec): void {
   const xMax = 10 ** Math.ceil(Math.log10(xHi) - 1e-9);
   const yMin = 10 ** Math.floor(Math.log10(yLo));
   const yMax = 10 ** Math.ceil(Math.log10(yHi) + (yHi === yLo ? 1 : 0));
-  const svg = svgFor(container, b, spec.label);
-  const x = scaleLog().domain([xMin, xMax]).range([b.left, b.width - b.right]);
-  const y = scaleLog().domain([yMin, yMax]).range([b.height - b.bottom, b.top]);
-  const root = select(svg);
-  const grid = root.append("g").attr("class", "grid");
-  for (const t of decades(xMin, xMax)) grid.append("line").attr("x1", x(t)).attr("x2", x(t)).attr("y1", b.top).attr("y2", b.height - b.bottom);
-  for (const v of decades(yMin, yMax)) grid.append("line").attr("x1", b.left).attr("x2", b.width - b.right).attr("y1", y(v)).attr("y2", y(v));
-  logAxis(root.append("g").attr("class", "axis x").attr("transform", `translate(0 ${b.height - b.bottom})`), (sc) => axisBottom(sc), x, xMin, xMax);
-  logAxis(root.append("g").attr("class", "axis y").attr("transform", `translate(${b.left} 0)`), (sc) => axisLeft(sc), y, yMin, yMax);
-  axisTitle(svg, b, spec.xTitle, spec.yTitle);
-  const clip = clipRect(svg, b);
-  const plot = root.append("g").attr("clip-path", `url(#${clip})`).node()!;
+  const { svg, x, y, plot } = logFrame(container, b, spec.label, [xMin, xMax], [yMin, yMax], spec.xTitle, spec.yTitle);
   if (ref && ref.value >= yMin && ref.value <= yMax) {
     plot.append(s("line", { class: "target-line", x1: b.left, x2: b.width - b.right, y1: y(ref.value), y2: y(ref.value) }));
     svg.append(richSvg(s("text", { class: "target-label", x: b.left + 6, y: y(ref.value) - 6 }), ref.label));
