@@ -165,17 +165,76 @@ struct Built {
     dick: crate::dick::DickSum,
 }
 
-/// Operating point, projection noise, g(t), Dick sum and the budget model of a validated design.
-fn build(d: &Design) -> Result<Built, InputError> {
+/// The costly stages of [`build`] (the operating-point search on the line shape, g(t) and
+/// the Dick sum), kept for the most recent distinct inputs, so that studies which change a
+/// field those stages do not read (the atom count, the attack time, the laser drift...) do
+/// not repeat them. Each stage is a pure function of the values it is keyed on, compared
+/// in full, so a hit gives the very numbers a fresh computation would.
+#[derive(Default)]
+pub struct StageCache {
+    operating: Vec<(OperatingKey, crate::projection::Operating)>,
+    sensitivity: Vec<(SensitivityKey, (SensitivityFunction, crate::dick::DickSum))>,
+}
+
+/// What the operating-point search reads: the probe's steps, decay and detuning factor,
+/// the readout and the rule.
+#[derive(PartialEq)]
+struct OperatingKey {
+    steps: Vec<crate::sequence::Step>,
+    gamma: f64,
+    detuning_factor: f64,
+    ro: Readout,
+    rule: crate::design::OperatingPointRule,
+}
+
+/// What g(t) and the Dick sum read: the whole probe, the operating detuning and the
+/// laser's spectrum (its description and the transition frequency).
+#[derive(PartialEq)]
+struct SensitivityKey {
+    probe: Probe,
+    detuning_hz: f64,
+    laser: crate::design::Laser,
+    nu0_hz: f64,
+}
+
+/// Entries kept per stage: a map alternates between rows, a sweep between designs.
+const STAGE_CACHE_ENTRIES: usize = 8;
+
+fn remember<K, V>(list: &mut Vec<(K, V)>, key: K, value: V) {
+    if list.len() == STAGE_CACHE_ENTRIES {
+        list.remove(0);
+    }
+    list.push((key, value));
+}
+
+/// Operating point, projection noise, g(t), Dick sum and the budget model of a validated
+/// design, the costly stages taken from `cache` when their inputs are unchanged.
+fn build_with(d: &Design, cache: &mut StageCache) -> Result<Built, InputError> {
     let cycle = d.cycle_time_s();
     let nu0 = d.transition.frequency_hz;
     let probe = Probe::from_design(d);
     let ro = Readout::from_design(d);
-    let op = operating_point(&probe, &ro, d.lock.operating_point)?;
+    let op_key = OperatingKey { steps: probe.steps.clone(), gamma: probe.gamma, detuning_factor: probe.detuning_factor, ro, rule: d.lock.operating_point };
+    let op = match cache.operating.iter().find(|(k, _)| *k == op_key) {
+        Some((_, op)) => *op,
+        None => {
+            let op = operating_point(&probe, &ro, d.lock.operating_point)?;
+            remember(&mut cache.operating, op_key, op);
+            op
+        }
+    };
     let proj = projection_noise(d, &op, cycle);
-    let gf = SensitivityFunction::new(&probe, op.detuning_hz)?;
     let spec = Spectrum::from_laser(&d.laser, nu0);
-    let dick = dick_sum(&gf, &spec);
+    let g_key = SensitivityKey { probe: probe.clone(), detuning_hz: op.detuning_hz, laser: d.laser.clone(), nu0_hz: nu0 };
+    let (gf, dick) = match cache.sensitivity.iter().find(|(k, _)| *k == g_key) {
+        Some((_, stages)) => stages.clone(),
+        None => {
+            let gf = SensitivityFunction::new(&probe, op.detuning_hz)?;
+            let dick = dick_sum(&gf, &spec);
+            remember(&mut cache.sensitivity, g_key, (gf.clone(), dick.clone()));
+            (gf, dick)
+        }
+    };
     let attack_s = d.lock.attack_time_s;
     let mut features = spec.breakpoints();
     features.push(1.0 / (2.0 * PI * attack_s));
@@ -195,16 +254,35 @@ pub const MAX_LOCKED_TAUS: usize = 4096;
 
 /// A design's locked-laser model, prepared once (operating point, g(t), Dick sum) and then
 /// evaluated at any averaging time, with the same model and numbers as [`evaluate`]. For
-/// putting several clocks on one grid of averaging times (comparisons of clocks).
+/// putting several clocks on one grid of averaging times (comparisons of clocks), and for
+/// studies that need one figure of many designs.
 pub struct LockedModel {
     model: Model,
+    sigma_projection_1s: f64,
+    sigma_dick_1s: f64,
+    cycle_s: f64,
+    probe_phase_rms_rad: f64,
 }
 
 impl LockedModel {
     /// Validates the design and prepares its model.
     pub fn new(d: &Design) -> Result<LockedModel, InputError> {
+        LockedModel::with_cache(d, &mut StageCache::default())
+    }
+
+    /// As [`LockedModel::new`], reusing the costly stages kept in `cache` where their
+    /// inputs are unchanged (the numbers are the same as without the cache).
+    pub fn with_cache(d: &Design, cache: &mut StageCache) -> Result<LockedModel, InputError> {
         d.validate()?;
-        Ok(LockedModel { model: build(d)?.model })
+        let b = build_with(d, cache)?;
+        let probe_phase_rms_rad = phase_rms(&b.model, d.transition.frequency_hz, b.probe.detuning_factor, b.probe.duration_s());
+        Ok(LockedModel {
+            sigma_projection_1s: b.proj.sigma_1s,
+            sigma_dick_1s: libm::sqrt(b.dick.variance_coefficient),
+            cycle_s: d.cycle_time_s(),
+            probe_phase_rms_rad,
+            model: b.model,
+        })
     }
 
     /// Allan variances by mechanism `[laser, projection, dick]` and the modified Allan
@@ -213,6 +291,46 @@ impl LockedModel {
         let m = self.model.mod_total(tau_s);
         (self.model.parts(tau_s), m * m)
     }
+
+    /// Allan deviation of the locked laser at `tau_s` (s), all mechanisms (fractional).
+    pub fn sigma_at(&self, tau_s: f64) -> f64 {
+        self.model.total(tau_s)
+    }
+
+    /// Projection-noise Allan deviation at 1 s, as [`Evaluation::projection`] gives it.
+    pub fn projection_1s(&self) -> f64 {
+        self.sigma_projection_1s
+    }
+
+    /// Dick-effect Allan deviation at 1 s, as [`Evaluation::dick`] gives it.
+    pub fn dick_1s(&self) -> f64 {
+        self.sigma_dick_1s
+    }
+
+    /// The white-frequency level extrapolated to 1 s, as [`Evaluation::sigma_1s_equivalent`].
+    pub fn sigma_1s_equivalent(&self) -> f64 {
+        sigma_1s_equivalent(self.sigma_projection_1s, self.sigma_dick_1s)
+    }
+
+    /// RMS phase excursion of the free laser over the probe, rad, as [`Evaluation::limits`] gives it.
+    pub fn probe_phase_rms_rad(&self) -> f64 {
+        self.probe_phase_rms_rad
+    }
+
+    /// Duration of one cycle, s.
+    pub fn cycle_time_s(&self) -> f64 {
+        self.cycle_s
+    }
+}
+
+fn sigma_1s_equivalent(projection_1s: f64, dick_1s: f64) -> f64 {
+    libm::sqrt(projection_1s * projection_1s + dick_1s * dick_1s)
+}
+
+/// Laser coherence over a probe of `t` s: the phase of the free laser's frequency wander
+/// between consecutive probes, 2 pi nu0 N T sqrt(2) sigma_y(T) (common practice).
+fn phase_rms(model: &Model, nu0: f64, n_phase: f64, t: f64) -> f64 {
+    2.0 * PI * nu0 * n_phase * t * libm::sqrt(2.0 * model.free_var(t, false))
 }
 
 /// Checks a list of averaging times: at most [`MAX_LOCKED_TAUS`], each finite, above 0 and
@@ -246,11 +364,17 @@ pub fn locked_variances(d: &Design, taus_s: &[f64]) -> Result<Vec<([f64; 3], f64
 /// assert!(e.sigma_1s_equivalent > 1e-17 && e.sigma_1s_equivalent < 1e-14);
 /// ```
 pub fn evaluate(d: &Design, opt: &EvalOptions) -> Result<Evaluation, InputError> {
+    evaluate_with_cache(d, opt, &mut StageCache::default())
+}
+
+/// As [`evaluate`], reusing the costly stages kept in `cache` where their inputs are
+/// unchanged; the result is the same as [`evaluate`]'s.
+pub fn evaluate_with_cache(d: &Design, opt: &EvalOptions, cache: &mut StageCache) -> Result<Evaluation, InputError> {
     d.validate()?;
     let cycle = d.cycle_time_s();
     check_options(opt, cycle)?;
     let nu0 = d.transition.frequency_hz;
-    let Built { model, probe, ro, op, proj, gf, dick } = build(d)?;
+    let Built { model, probe, ro, op, proj, gf, dick } = build_with(d, cache)?;
     let sigma_dick_1s = libm::sqrt(dick.variance_coefficient);
     let attack_s = d.lock.attack_time_s;
 
@@ -265,7 +389,7 @@ pub fn evaluate(d: &Design, opt: &EvalOptions) -> Result<Evaluation, InputError>
         curve.mod_total.push(model.mod_total(tau));
         curve.free_laser.push(libm::sqrt(model.free_var(tau, true)));
     }
-    let sigma_1s_equivalent = libm::sqrt(proj.sigma_1s * proj.sigma_1s + sigma_dick_1s * sigma_dick_1s);
+    let sigma_1s_equivalent = sigma_1s_equivalent(proj.sigma_1s, sigma_dick_1s);
 
     let checkpoints = CHECKPOINTS_S
         .iter()
@@ -284,11 +408,10 @@ pub fn evaluate(d: &Design, opt: &EvalOptions) -> Result<Evaluation, InputError>
 
     let target = time_to_target(&model, &curve, opt.target_instability, sigma_1s_equivalent);
 
-    // Laser coherence over the probe: phase of the free laser's frequency wander between
-    // consecutive probes, 2 pi nu0 N T sqrt(2) sigma_y(T) (common practice).
+    // Laser coherence over the probe (see `phase_rms`).
     let n_phase = probe.detuning_factor;
     let probe_s = probe.duration_s();
-    let phase_rms = |t: f64| 2.0 * PI * nu0 * n_phase * t * libm::sqrt(2.0 * model.free_var(t, false));
+    let phase_rms = |t: f64| phase_rms(&model, nu0, n_phase, t);
     let probe_phase_rms_rad = phase_rms(probe_s);
     let coherence_probe_limit_s = {
         let (mut a, mut b) = (libm::log(1e-7), libm::log(1e5));

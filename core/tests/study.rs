@@ -8,6 +8,7 @@ use clockwright_core::study::contour::{auto_levels, marching_squares, Grid};
 use clockwright_core::study::optimum::{OptimumMechanism, ProbeScaling, ProbeShape, RangeEnd};
 use clockwright_core::study::sweep::{Axis, Spacing};
 use clockwright_core::study::*;
+use clockwright_core::budget::{evaluate_with_cache, StageCache};
 use clockwright_core::{demo, evaluate, EvalOptions};
 use common::*;
 use std::f64::consts::PI;
@@ -40,7 +41,7 @@ fn random_design(rng: &mut Rng) -> Design {
 /// sigma_y at tau of `d` with probe time `t` and `rounds` rounds, or infinity without a value.
 fn sigma_at(d: &Design, t: f64, rounds: u32, tau: f64, attack_cycles: Option<f64>) -> f64 {
     let changed = ProbeScaling::of(d).apply(d, t, rounds, attack_cycles);
-    Output::SigmaAt { tau_s: tau }.evaluate(&changed).unwrap_or(f64::INFINITY)
+    Output::SigmaAt { tau_s: tau }.evaluate(&changed, &mut StageCache::default()).unwrap_or(f64::INFINITY)
 }
 
 /// Slow twin of the optimum: a brute-force scan of 1500 log-spaced probe times over the same
@@ -73,7 +74,7 @@ fn optimum_agrees_with_a_fine_brute_force_scan() {
         assert!(o.sigma <= best.0 * (1.0 + 1e-9), "case {case}: optimum {} at {} s, scan {} at {} s", o.sigma, o.probe_time_s, best.0, best.1);
         assert!(o.sigma >= best.0 * (1.0 - 1e-3), "case {case}: optimum {} far below the scan {}", o.sigma, best.0);
         // The reported optimum is what evaluating its design gives.
-        let again = Output::SigmaAt { tau_s: tau }.evaluate(&o.design).unwrap();
+        let again = Output::SigmaAt { tau_s: tau }.evaluate(&o.design, &mut StageCache::default()).unwrap();
         assert!(rel(again, o.sigma) < 1e-12, "case {case}: {again} vs {}", o.sigma);
         assert!(o.sigma.is_finite() && o.laser.is_finite() && o.projection.is_finite() && o.dick.is_finite());
         assert!(rel((o.laser.powi(2) + o.projection.powi(2) + o.dick.powi(2)).sqrt(), o.sigma) < 1e-9);
@@ -244,7 +245,7 @@ fn atom_count_sweep_follows_the_projection_limit() {
     for (n, v) in r.x.iter().zip(&r.series[0].values) {
         let mut dn = d.clone();
         dn.atoms.count = *n as u64;
-        assert_eq!(*v, Output::Projection1s.evaluate(&dn).ok());
+        assert_eq!(*v, Output::Projection1s.evaluate(&dn, &mut StageCache::default()).ok());
     }
 }
 
@@ -283,7 +284,7 @@ fn sweep_values_equal_designs_changed_by_hand() {
             for (i, &x) in r.x.iter().enumerate() {
                 let mut changed = d.clone();
                 set_field(&mut changed, path, x);
-                let direct = output.evaluate(&changed).ok();
+                let direct = output.evaluate(&changed, &mut StageCache::default()).ok();
                 assert_eq!(s.values[i], direct, "{path} = {x} in {}", d.name);
                 assert_eq!(s.values[i].is_none(), s.holes.iter().any(|h| h.index == i));
             }
@@ -368,7 +369,7 @@ fn chunked_map_matches_one_call_and_reports_progress() {
     let mut d = designs[1].clone();
     d.atoms.count = 4;
     set_field(&mut d, "sequence.segments[2].duration_s", whole.y[3]);
-    assert_eq!(whole.series[1].values[3 * 6 + 3], Output::SigmaAt { tau_s: 1000.0 }.evaluate(&d).ok());
+    assert_eq!(whole.series[1].values[3 * 6 + 3], Output::SigmaAt { tau_s: 1000.0 }.evaluate(&d, &mut StageCache::default()).ok());
     assert!(whole.series.iter().all(|s| s.contours.iter().any(|c| !c.segments.is_empty())));
 }
 
@@ -728,4 +729,85 @@ fn bands_are_reproducible_by_seed() {
     let a = BandRun::new(&d, &req).unwrap().inputs().to_vec();
     req.seed = 2;
     assert_ne!(a, BandRun::new(&d, &req).unwrap().inputs().to_vec());
+}
+
+// ---------------------------------------------------------------------------------------
+// The stage cache and the light outputs.
+// ---------------------------------------------------------------------------------------
+
+/// One random edit of a design: fields the cached stages read (probe time, lifetime,
+/// detection, laser) and fields they do not (atom count, attack time, drift).
+fn random_edit(d: &mut Design, rng: &mut Rng) {
+    match rng.next_u64() % 7 {
+        0 => d.atoms.count = rng.log_uniform(1.0, 1e4) as u64,
+        1 => d.lock.attack_time_s = rng.log_uniform(2.0, 20.0),
+        2 => d.laser.drift_per_s = rng.uniform(-1e-17, 1e-17),
+        3 => d.laser.noise[0] = NoiseTerm::WhiteFrequency { sigma_y_1s: rng.log_uniform(1e-17, 1e-15) },
+        4 => d.transition.lifetime_s = Some(rng.log_uniform(0.1, 10.0)),
+        5 => d.detection.misread_ground = rng.uniform(0.0, 0.05),
+        _ => {
+            let n = d.sequence.segments.len();
+            if let Segment::Pulse { duration_s, .. } | Segment::Free { duration_s } = &mut d.sequence.segments[n - 1 - (rng.next_u64() as usize % n.min(2))] {
+                *duration_s *= rng.log_uniform(0.5, 2.0);
+            }
+        }
+    }
+}
+
+/// Slow twin of the stage cache: a chain of random edits evaluated with one shared cache
+/// gives, bit for bit, the evaluation of each design from scratch (the cache is keyed on
+/// every value its stages read).
+#[test]
+fn cached_stages_give_the_same_evaluation_bit_for_bit() {
+    let mut rng = Rng(0x5EED_CAC4E);
+    let mut cache = StageCache::default();
+    let opt = EvalOptions { plot_points: 32, tau_points: 12, ..Default::default() };
+    let mut designs: Vec<Design> = demo::designs();
+    designs.extend((0..4).map(|_| random_design(&mut rng)));
+    for start in designs {
+        let mut d = start;
+        for _ in 0..12 {
+            random_edit(&mut d, &mut rng);
+            // A revisited design too: the cache keeps several entries per stage.
+            let fresh = evaluate(&d, &opt).map(|e| serde_json::to_string(&e).unwrap()).map_err(|e| e.to_string());
+            let cached = evaluate_with_cache(&d, &opt, &mut cache).map(|e| serde_json::to_string(&e).unwrap()).map_err(|e| e.to_string());
+            assert_eq!(fresh, cached, "{}", d.name);
+        }
+    }
+}
+
+/// Slow twin of the light outputs: each output read off the full evaluation (a curve whose
+/// last averaging time is tau, the table, the limits) agrees with the figure the locked
+/// model gives directly, on random designs.
+#[test]
+fn light_outputs_agree_with_the_full_evaluation() {
+    let mut rng = Rng(0x5EED_0u64 + 77);
+    let mut cache = StageCache::default();
+    for _ in 0..40 {
+        let d = random_design(&mut rng);
+        let tau = rng.log_uniform(10.0, 1e5);
+        let outputs = [
+            Output::SigmaAt { tau_s: tau },
+            Output::Sigma1sEquivalent,
+            Output::Projection1s,
+            Output::Dick1s,
+            Output::DickShare,
+            Output::TimeToTarget { target: rng.log_uniform(1e-19, 1e-16) },
+            Output::ProbePhaseRmsRad,
+            Output::CycleTimeS,
+        ];
+        let full = evaluate(&d, &EvalOptions { tau_max_s: tau, ..Default::default() }).unwrap();
+        for o in outputs {
+            let light = o.evaluate(&d, &mut cache);
+            let slow = match o {
+                Output::SigmaAt { .. } => Ok(*full.curve.total.last().unwrap()),
+                Output::TimeToTarget { .. } => o.read(&evaluate(&d, &o.options()).unwrap()),
+                _ => o.read(&full),
+            };
+            match (light, slow) {
+                (Ok(a), Ok(b)) => assert!(rel(a, b) < 1e-12, "{o:?}: {a:e} vs {b:e} for {}", d.name),
+                (a, b) => assert_eq!(a, b, "{o:?}"),
+            }
+        }
+    }
 }

@@ -26,17 +26,23 @@ test("benchmark: 100-point sweep of four designs; 50x50 map in the worker", asyn
     await openPage(page);
     await page.selectOption('select[name="output"]', "sigma_at");
     await page.fill('input[name="output-param"]', "1000");
-    // The issue's sweep (ion count 1 to 20: 100 points, 20 distinct designs each) and one of
-    // 100 distinct counts (1 to 100).
     const sweeps = {};
-    for (const to of [20, 100]) {
+    // The issue's sweep (ion count 1 to 20: 100 points, 20 distinct designs each), one of 100
+    // distinct counts (1 to 100), and one of 100 distinct durations of the first pulse (the
+    // probe time of the Rabi designs), where every point needs a new line-shape search.
+    const cases = {
+      20: ["atoms.count", 1, 20, "linear"],
+      100: ["atoms.count", 1, 100, "linear"],
+      probe: ["sequence.segments[2].duration_s", 0.01, 1, "log"],
+    };
+    for (const [key, [path, from, to, spacing]] of Object.entries(cases)) {
       await page.evaluate(() => ["cw-sweep", "cw-sweep-engine"].forEach((m) => performance.clearMeasures(m)));
-      await setAxis(page, "x", "atoms.count", 1, to, 100, "linear");
+      await setAxis(page, "x", path, from, to, 100, spacing);
       for (let i = 0; i < SWEEPS; i++) {
         await page.click(".study-row >> text=Run >> nth=0");
         await page.waitForFunction((k) => performance.getEntriesByName("cw-sweep").length >= k, i + 1);
       }
-      sweeps[to] = {
+      sweeps[key] = {
         all: await page.evaluate(() => performance.getEntriesByName("cw-sweep").map((e) => e.duration)),
         engine: await page.evaluate(() => performance.getEntriesByName("cw-sweep-engine").map((e) => e.duration)),
       };
@@ -78,6 +84,9 @@ test("benchmark: 100-point sweep of four designs; 50x50 map in the worker", asyn
       sweep_1_to_100_median_ms: Number(median(sweeps[100].all).toFixed(1)),
       sweep_1_to_100_min_ms: Number(Math.min(...sweeps[100].all).toFixed(1)),
       sweep_1_to_100_engine_median_ms: Number(median(sweeps[100].engine).toFixed(1)),
+      sweep_probe_time_median_ms: Number(median(sweeps.probe.all).toFixed(1)),
+      sweep_probe_time_min_ms: Number(Math.min(...sweeps.probe.all).toFixed(1)),
+      sweep_probe_time_engine_median_ms: Number(median(sweeps.probe.engine).toFixed(1)),
       map_points: 2500,
       map_ms: maps.map((m) => Number(m.toFixed(0))),
       map_longest_frame_gap_ms: gaps.map((g) => Number(g.toFixed(0))),
@@ -85,6 +94,7 @@ test("benchmark: 100-point sweep of four designs; 50x50 map in the worker", asyn
     const line =
       `benchmark: 100-point sweep of 4 designs over ${SWEEPS} runs, atoms.count 1 to 20: median ${report.sweep_1_to_20_median_ms} ms (min ${report.sweep_1_to_20_min_ms}; engine ${report.sweep_1_to_20_engine_median_ms} ms); ` +
       `1 to 100: median ${report.sweep_1_to_100_median_ms} ms (min ${report.sweep_1_to_100_min_ms}; engine ${report.sweep_1_to_100_engine_median_ms} ms); ` +
+      `first pulse 0.01 to 1 s: median ${report.sweep_probe_time_median_ms} ms (min ${report.sweep_probe_time_min_ms}; engine ${report.sweep_probe_time_engine_median_ms} ms); ` +
       `50x50 map in the worker: ${report.map_ms.join(", ")} ms (first includes starting the worker), longest frame gap meanwhile ${report.map_longest_frame_gap_ms.join(", ")} ms`;
     console.log(line);
     t.diagnostic(line);

@@ -19,6 +19,7 @@ use super::caps::{MAX_QUANTILES, MAX_SAMPLES, MAX_UNCERTAIN};
 use super::path::{with_values, FieldPath, NumberKind};
 use super::sweep::{Hole, Progress};
 use super::SplitMix64;
+use crate::budget::{evaluate_with_cache, StageCache};
 use crate::design::Design;
 use crate::error::{show, Checker, InputError};
 use crate::result::{EvalOptions, Evaluation};
@@ -282,6 +283,9 @@ pub struct BandRun {
     curves: Vec<Vec<Option<f64>>>,
     scalar_values: Vec<[f64; 10]>,
     failed: Vec<Hole>,
+    /// Costly stages reused between samples whose fields leave them unchanged (an
+    /// uncertain laser floor keeps the operating point, an uncertain atom count all of them).
+    stages: StageCache,
 }
 
 impl BandRun {
@@ -338,7 +342,7 @@ impl BandRun {
             }
         }
         let inputs = u.iter().map(|row| row.iter().zip(&req.uncertain).map(|(&x, f)| f.distribution.quantile(x.clamp(1e-300, 1.0 - 1e-16))).collect()).collect();
-        Ok(BandRun { base, paths, req: req.clone(), inputs, nominal, next: 0, curves: Vec::new(), scalar_values: Vec::new(), failed: Vec::new() })
+        Ok(BandRun { base, paths, req: req.clone(), inputs, nominal, next: 0, curves: Vec::new(), scalar_values: Vec::new(), failed: Vec::new(), stages: StageCache::default() })
     }
 
     /// The drawn inputs: `inputs()[i][j]` is field j of sample i (before whole-number rounding).
@@ -360,7 +364,7 @@ impl BandRun {
         while self.next < end {
             let i = self.next;
             let changes: Vec<(&FieldPath, NumberKind, f64)> = self.paths.iter().zip(&self.inputs[i]).map(|((p, k), &x)| (p, *k, x)).collect();
-            let r = with_values(&mut self.base, &changes).and_then(|d| crate::evaluate(&d, &self.req.options).map_err(|e| e.to_string()));
+            let r = with_values(&mut self.base, &changes).and_then(|d| evaluate_with_cache(&d, &self.req.options, &mut self.stages).map_err(|e| e.to_string()));
             match r {
                 Ok(e) => {
                     self.curves.push(self.nominal.curve.tau_s.iter().map(|&t| curve_at(&e.curve.tau_s, &e.curve.total, t)).collect());

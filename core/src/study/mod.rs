@@ -20,6 +20,7 @@ pub mod optimum;
 pub mod path;
 pub mod sweep;
 
+use crate::budget::{LockedModel, StageCache};
 use crate::design::Design;
 use crate::error::{show, Checker, InputError};
 use crate::result::{EvalOptions, Evaluation};
@@ -119,17 +120,41 @@ impl Output {
         }
     }
 
-    /// Evaluates `design` with [`Output::options`] and reads the output; `Err` holds the
+    /// The output for `design`, computed as the full evaluation computes it; `Err` holds the
     /// reason in a sentence when there is no value (invalid design, target not reached).
-    pub fn evaluate(&self, design: &Design) -> Result<f64, String> {
+    /// Figures of the locked-laser model are read off [`LockedModel`] (no curve, plots or
+    /// search for the coherence limit); the time to target needs the whole evaluation.
+    /// `cache` keeps the costly stages between calls (see [`StageCache`]).
+    pub fn evaluate(&self, design: &Design, cache: &mut StageCache) -> Result<f64, String> {
         if let Output::SigmaAt { tau_s } = *self {
             let cycle = design.cycle_time_s();
             if cycle.is_finite() && cycle >= tau_s {
                 return Err(format!("the averaging time {} s is not longer than one cycle ({} s)", show(tau_s), show(cycle)));
             }
         }
-        let e = crate::evaluate(design, &self.options()).map_err(|e| e.to_string())?;
-        self.read(&e)
+        let v = match *self {
+            Output::TimeToTarget { .. } => {
+                let e = crate::budget::evaluate_with_cache(design, &self.options(), cache).map_err(|e| e.to_string())?;
+                return self.read(&e);
+            }
+            _ => self.from_model(&LockedModel::with_cache(design, cache).map_err(|e| e.to_string())?),
+        };
+        if v.is_finite() { Ok(v) } else { Err("the evaluation gave no finite value".into()) }
+    }
+
+    /// The output read off a prepared model; NaN for the time to target, which needs the
+    /// whole curve.
+    fn from_model(&self, m: &LockedModel) -> f64 {
+        match *self {
+            Output::SigmaAt { tau_s } => m.sigma_at(tau_s),
+            Output::Sigma1sEquivalent => m.sigma_1s_equivalent(),
+            Output::Projection1s => m.projection_1s(),
+            Output::Dick1s => m.dick_1s(),
+            Output::DickShare => dick_share(m.projection_1s(), m.dick_1s()),
+            Output::ProbePhaseRmsRad => m.probe_phase_rms_rad(),
+            Output::CycleTimeS => m.cycle_time_s(),
+            Output::TimeToTarget { .. } => f64::NAN,
+        }
     }
 
     /// Reads the output off an evaluation made with (at least) [`Output::options`].
@@ -139,11 +164,7 @@ impl Output {
             Output::Sigma1sEquivalent => e.sigma_1s_equivalent,
             Output::Projection1s => e.projection.sigma_1s,
             Output::Dick1s => e.dick.sigma_1s,
-            Output::DickShare => {
-                let (p, d) = (e.projection.sigma_1s, e.dick.sigma_1s);
-                let s = p * p + d * d;
-                if s > 0.0 { d * d / s } else { 0.0 }
-            }
+            Output::DickShare => dick_share(e.projection.sigma_1s, e.dick.sigma_1s),
             Output::TimeToTarget { .. } => match e.target.time_s {
                 Some(t) => t,
                 None => return Err(format!("the target {} is {}", show(e.target.target), e.target.note)),
@@ -153,6 +174,12 @@ impl Output {
         };
         if v.is_finite() { Ok(v) } else { Err("the evaluation gave no finite value".into()) }
     }
+}
+
+/// sigma_Dick^2 / (sigma_QPN^2 + sigma_Dick^2), 0 when both vanish.
+fn dick_share(projection_1s: f64, dick_1s: f64) -> f64 {
+    let s = projection_1s * projection_1s + dick_1s * dick_1s;
+    if s > 0.0 { dick_1s * dick_1s / s } else { 0.0 }
 }
 
 /// A seeded generator (SplitMix64) for the sampling of uncertainty studies: the same seed

@@ -4,7 +4,8 @@
 //! The work is split into points (design x grid point) that [`GridRun::advance`] evaluates
 //! a few at a time, so a Web Worker can report progress between chunks and cancel by
 //! dropping the run. [`sweep`] and [`map`] run to the end in one call. Every point is
-//! evaluated with the light options of its [`Output`] (no 161-point plots). A point where
+//! evaluated as [`Output::evaluate`] does (the locked model only, the costly stages kept
+//! while the fields they read are unchanged: see [`crate::budget::StageCache`]). A point where
 //! the changed design is invalid, or where the output has no value (target not reached),
 //! is a [`Hole`] with the reason; its value is `None` (JSON `null`), never NaN.
 
@@ -12,6 +13,7 @@ use super::caps::{MAX_AXIS_POINTS, MAX_GRID_EVALUATIONS, MAX_LEVELS};
 use super::contour::{auto_levels, marching_squares, ContourLine, Grid};
 use super::path::{with_values, FieldPath, NumberKind};
 use super::{check_designs, Output};
+use crate::budget::StageCache;
 use crate::design::Design;
 use crate::error::{show, Checker, InputError};
 use serde::{Deserialize, Serialize};
@@ -182,6 +184,9 @@ pub struct GridRun {
     holes: Vec<Vec<Hole>>,
     /// The outcome of each (design, x bits, y bits) evaluated so far.
     seen: HashMap<(usize, u64, u64), Result<f64, String>>,
+    /// Costly stages of the evaluations (line shape search, g(t), Dick sum), reused while
+    /// the fields they read are unchanged.
+    stages: StageCache,
 }
 
 impl GridRun {
@@ -240,6 +245,7 @@ impl GridRun {
             values: designs.iter().map(|_| Vec::with_capacity(per_design)).collect(),
             holes: designs.iter().map(|_| Vec::new()).collect(),
             seen: HashMap::new(),
+            stages: StageCache::default(),
         })
     }
 
@@ -283,7 +289,7 @@ impl GridRun {
             let value = match self.seen.get(&key) {
                 Some(v) => v.clone(),
                 None => {
-                    let v = with_values(&mut self.bases[d], &changes).and_then(|design| self.output.evaluate(&design));
+                    let v = with_values(&mut self.bases[d], &changes).and_then(|design| self.output.evaluate(&design, &mut self.stages));
                     self.seen.insert(key, v.clone());
                     v
                 }
