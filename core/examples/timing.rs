@@ -6,7 +6,7 @@
 //! timing sim <design.json> <cycles> <substeps> <seeds> one run per seed: cycles/s and ADEV points
 //! timing ramsey <design.json>                          the simulation bench's single-ion Ramsey design
 //! ```
-//! `eval` times `reps` batches of full evaluations (default options) after a warm-up and
+//! `eval` times `reps` batches (0: no timing, the numbers only) of full evaluations (default options) after a warm-up and
 //! prints, per design, the median, 10th and 90th percentile of the time of one evaluation
 //! and the evaluation itself. `sim` runs the cycle-by-cycle simulation once per seed
 //! (comma-separated) with the given recorded cycles and sub-steps per pulse, no settling
@@ -42,6 +42,11 @@ fn eval(reps: usize, paths: &[String]) -> Result<Value, String> {
     for path in paths {
         let d = load(path)?;
         let e = evaluate(&d, &opts).map_err(|e| e.to_string())?;
+        if reps == 0 {
+            // Numbers only (the agreement check of `./dev test`).
+            out.push(json!({ "file": path, "name": d.name, "median_s": null, "evaluation": e }));
+            continue;
+        }
         // Batches long enough to be well above the clock's resolution.
         let t0 = Instant::now();
         let mut warm = 0;
@@ -51,7 +56,7 @@ fn eval(reps: usize, paths: &[String]) -> Result<Value, String> {
         }
         let per_batch = ((0.02 / (t0.elapsed().as_secs_f64() / warm as f64)).ceil() as usize).max(1);
         let mut samples = Vec::with_capacity(reps);
-        for _ in 0..reps.max(1) {
+        for _ in 0..reps {
             let t = Instant::now();
             for _ in 0..per_batch {
                 black_box(evaluate(black_box(&d), &opts).map_err(|e| e.to_string())?);

@@ -3,7 +3,7 @@
 // (built by ./dev page --no-serve) and prints JSON on standard output:
 //
 //   node tests/reference/speed_wasm.mjs eval <reps> design.json...
-//       per design: median, 10th and 90th percentile of one full evaluate() (default
+//       per design (reps 0: the numbers only): median, 10th and 90th percentile of one full evaluate() (default
 //       options, JSON in and out as the page does), and the evaluation itself;
 //   node tests/reference/speed_wasm.mjs sim <design.json> <cycles> <substeps> <seed>
 //       one simulation run: cycles per second of advance() (one thread) and the simulated
@@ -27,11 +27,16 @@ async function main() {
   const cw = await import(pathToFileURL(PKG).href);
   await cw.ready();
   if (cmd === "eval" && args.length >= 2) {
-    const reps = Math.max(1, Math.min(10000, Number.parseInt(args[0], 10) || 1));
+    const reps = Math.max(0, Math.min(10000, Number.parseInt(args[0], 10) || 0));
     const out = [];
     for (const file of args.slice(1)) {
       const design = JSON.parse(readFileSync(file, "utf8"));
       const evaluation = cw.evaluate(design, null);
+      if (reps === 0) {
+        // Numbers only (the agreement check of ./dev test).
+        out.push({ file, name: design.name, median_s: null, evaluation });
+        continue;
+      }
       const t0 = performance.now();
       let warm = 0;
       while (performance.now() - t0 < 200 || warm < 5) {
