@@ -25,6 +25,9 @@ use std::hint::black_box;
 use std::process::ExitCode;
 use std::time::Instant;
 
+/// Most runs of one `sim` call.
+const MAX_SEEDS: usize = 1000;
+
 fn load(path: &str) -> Result<Design, String> {
     let text = std::fs::read_to_string(path).map_err(|e| format!("{path}: {e}"))?;
     Design::from_json(&text).map_err(|e| format!("{path}: {e}"))
@@ -83,6 +86,9 @@ fn ramsey(d: &Design) -> Result<Design, String> {
 fn sim(path: &str, cycles: u64, substeps: u32, seeds: &str) -> Result<Value, String> {
     let d = load(path)?;
     let mut runs = Vec::new();
+    if seeds.split(',').count() > MAX_SEEDS {
+        return Err(format!("at most {MAX_SEEDS} seeds"));
+    }
     for seed in seeds.split(',') {
         let seed: u64 = seed.trim().parse().map_err(|_| format!("seed {seed:?} is not a whole number"))?;
         let o = SimOptions { cycles, seed, pulse_substeps: substeps, ..Default::default() };
