@@ -184,6 +184,10 @@ def self_checks(tally, designs):
         t = d.t_start + d.probe * rng.uniform(0, 1, 12)
         fast, slow = ref.g_raw(d, nu, t), bloch.g_bruteforce(d, nu, t)
         tally.check("g(t)", f"{d.name}: state/costate vs brute-force phase steps, 12 random times, rel. to max", float(np.max(np.abs(fast - slow)) / np.max(np.abs(slow))), 1e-9)
+    coeffs = np.array([ref.ou_coeffs(rng.uniform(0.1, 2), tau, L) for tau, L in zip(rng.uniform(0.01, 1, 6), rng.uniform(1e-3, 0.2, 6))])
+    x0, g1, g2 = rng.standard_normal(3), rng.standard_normal((3, 50, 6)), rng.standard_normal((3, 50, 6))
+    (fj, fx), (sj, sx) = ref.ou_integrals(coeffs, x0, g1, g2), ref.ou_integrals_loop(coeffs, x0, g1, g2)
+    tally.check("laser noise", "Ornstein-Uhlenbeck integrals, cycle recursion by lfilter vs interval-by-interval loop, random case, max abs", float(max(np.max(np.abs(fj - sj)), np.max(np.abs(fx - sx)))), 1e-12)
     d = Design(designs[0])
     ts = d.attack
     hp = lambda f: (2 * math.pi * f * ts) ** 2 / (1 + (2 * math.pi * f * ts) ** 2)  # noqa: E731
@@ -253,7 +257,7 @@ def main():
         with open(rpath, "w") as f:
             json.dump(ramsey_json, f)
         d = Design(rpath)
-        runs, cycles, substeps = (8, 1024, 4) if quick else (16, 8192, 4)
+        runs, cycles, substeps = (8, 2048, 4) if quick else (16, 8192, 4)
         seeds = ",".join(str(s) for s in range(1, runs + 1))
         nat = json.loads(run([exe, "sim", rpath, str(cycles), str(substeps), seeds]))
         t = time.perf_counter()

@@ -409,22 +409,10 @@ class Laser:
             slow += (w_start * tc + half * dw + sj * rng.standard_normal((R, n))) / tc
             self.w = w_start[:, -1] + dw[:, -1]
         for p in self.fast:
-            # Exact interval steps, sequential within the cycle and across cycles: the end
-            # value after each cycle is an AR(1) recursion with the cycle's coefficient.
-            a, s1, m, k, sj = p["c"].T
             g1 = rng.standard_normal((R, n, len(L)))
             g2 = rng.standard_normal((R, n, len(L)))
-            d = s1 * g1
-            # Innovation over a whole cycle: sum_i d_i prod_{j>i} a_j.
-            after = np.concatenate([np.cumprod(a[::-1])[::-1][1:], [1.0]])
-            e = d @ after
-            ac = float(np.prod(a))
-            xs = _ar1(e, ac, p["x"])
-            p["x"] = ac * xs[:, -1] + e[:, -1]
-            xi = xs
-            for i in range(len(L)):
-                out[:, :, i] += m[i] * xi + k[i] * d[:, :, i] + sj[i] * g2[:, :, i]
-                xi = a[i] * xi + d[:, :, i]
+            J, p["x"] = ou_integrals(p["c"], p["x"], g1, g2)
+            out += J
         for p in self.slow:
             a, s1, m, k, sj = p["c"]
             nb = p["n"]
@@ -449,6 +437,45 @@ class Laser:
             out += self.drift * (t * L + 0.5 * L * L)
         self.t0 += n * tc
         return out
+
+
+def ou_integrals(coeffs, x0, g1, g2):
+    """Integrals over every interval of n cycles of an Ornstein-Uhlenbeck process stepped
+    exactly interval by interval (`coeffs`: one row (a, s1, m, k, sj) of `ou_coeffs` per
+    interval of the cycle), for each run, from its value x0 (runs,) and the normal deviates
+    g1, g2 (runs, n, intervals). Returns the integrals and the value at the end.
+    Vectorised: the value at each cycle start is an AR(1) recursion with the product of the
+    interval coefficients, run by scipy.signal.lfilter; `ou_integrals_loop` is its twin."""
+    a, s1, m, k, sj = np.asarray(coeffs).T
+    d = s1 * g1
+    # Innovation over a whole cycle: sum_i d_i prod_{j>i} a_j.
+    after = np.concatenate([np.cumprod(a[::-1])[::-1][1:], [1.0]])
+    e = d @ after
+    ac = float(np.prod(a))
+    xi = _ar1(e, ac, x0)
+    x_end = ac * xi[:, -1] + e[:, -1]
+    out = np.empty_like(g1)
+    for i in range(len(a)):
+        out[:, :, i] = m[i] * xi + k[i] * d[:, :, i] + sj[i] * g2[:, :, i]
+        xi = a[i] * xi + d[:, :, i]
+    return out, x_end
+
+
+def ou_integrals_loop(coeffs, x0, g1, g2):
+    """The slow, obvious twin of `ou_integrals`: every interval stepped in turn."""
+    R, n, L = g1.shape
+    out = np.empty_like(g1)
+    x_end = np.empty(R)
+    for r in range(R):
+        x = float(x0[r])
+        for c in range(n):
+            for i in range(L):
+                a, s1, m, k, sj = coeffs[i]
+                dd = s1 * g1[r, c, i]
+                out[r, c, i] = m * x + k * dd + sj * g2[r, c, i]
+                x = a * x + dd
+        x_end[r] = x
+    return out, x_end
 
 
 def _ar1(e, a, x0):
