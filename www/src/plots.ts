@@ -177,11 +177,15 @@ interface SigmaView {
 
 const sigmaViews = new WeakMap<HTMLElement, SigmaView>();
 
-/** Replaces the plot with a note, unless `frame` says that the same note is already shown. */
+/**
+ * Replaces the plot with a note in a short strip (an empty plot area would only push the
+ * rest of the page down), unless `frame` says that the same note is already shown.
+ */
 function emptyPlot(container: HTMLElement, b: Box, label: string, note: string, frame: string, last: string | undefined): void {
   if (last === frame) return;
-  const svg = svgFor(container, b, label);
-  svg.append(s("text", { x: b.width / 2, y: b.height / 2, "text-anchor": "middle", class: "empty" }, note));
+  const strip = { ...b, height: Math.min(b.height, 96) };
+  const svg = svgFor(container, strip, label);
+  svg.append(s("text", { x: strip.width / 2, y: strip.height / 2, "text-anchor": "middle", "dominant-baseline": "middle", class: "empty" }, note));
 }
 
 /**
