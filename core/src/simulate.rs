@@ -859,16 +859,43 @@ fn fit_table(spectrum: &Spectrum, g: &[f64], delta: f64) -> (Vec<f64>, Vec<f64>,
 // ---------------------------------------------------------------------------------------
 // The closed loop
 
-/// One probe interval: the step (pulse or free), its duration and the drive's x and y
-/// components Omega cos(phi), Omega sin(phi) (rad/s), computed once.
+/// One probe interval: the step (pulse or free), its duration, the drive's x and y
+/// components Omega cos(phi), Omega sin(phi) (rad/s) and what else does not depend on the
+/// cycle's detuning (rho^2 = x^2 + y^2; for free evolution the decay factors
+/// exp(-gamma L / 2) and exp(-gamma L)), computed once.
 #[derive(Debug, Clone, Copy)]
 struct Interval {
     step: Step,
     len: f64,
     drive: [f64; 2],
+    rho2: f64,
+    decay: [f64; 2],
+}
+
+/// Below this rotation angle beta L of a driven interval with decay, [`Interval::propagate`]
+/// takes the general series of sequence.rs instead of the closed form (where the closed
+/// form's terms of order alpha t and q^2 t^2 would cancel beyond rounding).
+const CLOSED_FORM_MIN_ANGLE: f64 = 1e-2;
+
+/// exp(x) - 1 for |x| <= 2^-6 by its Taylor polynomial of degree 7 (the first omitted
+/// term is below 5e-18 relative: rounding), else `libm::expm1`.
+#[inline]
+fn expm1_fast(x: f64) -> f64 {
+    if x.abs() <= 0.015625 {
+        x * (1.0 + x * (0.5 + x * (1.0 / 6.0 + x * (1.0 / 24.0 + x * (1.0 / 120.0 + x * (1.0 / 720.0 + x * (1.0 / 5040.0)))))))
+    } else {
+        libm::expm1(x)
+    }
 }
 
 impl Interval {
+    fn new(step: Step, len: f64, gamma: f64) -> Interval {
+        let drive = if step.omega == 0.0 { [0.0, 0.0] } else { [step.omega * libm::cos(step.phase), step.omega * libm::sin(step.phase)] };
+        let rho2 = drive[0] * drive[0] + drive[1] * drive[1];
+        let d = libm::exp(-gamma * len / 2.0);
+        Interval { step, len, drive, rho2, decay: [d, d * d] }
+    }
+
     /// The generator at laser detuning `det` (rad/s): the same as `Generator::new(&step,
     /// det, gamma)` (sequence.rs) without recomputing the drive's cosine and sine.
     #[inline]
@@ -877,6 +904,139 @@ impl Interval {
         let z = -(det + self.step.offset);
         let h = gamma / 2.0;
         Generator { a: [[-h, -z, y], [z, -h, -x], [-y, x, -gamma]], gamma, axis: [x, y, z] }
+    }
+
+    /// The Bloch vector `r` carried over the interval at laser detuning `det` (rad/s): the
+    /// exact propagator of `Generator::propagator` (sequence.rs) applied to one vector,
+    /// with nothing that does not depend on the detuning recomputed and no 3x3 matrix
+    /// formed.
+    ///
+    /// - Free evolution: a turn about z by -(det + offset) L, the transverse part shrunk by
+    ///   exp(-gamma L / 2) and w relaxed to -1 by exp(-gamma L) (optical Bloch equations
+    ///   with amplitude damping; the factors are precomputed).
+    /// - Driven without decay: Rodrigues' rotation formula on the vector, with
+    ///   1 - cos(theta) = 2 sin^2(theta/2) (no cancellation at small angles).
+    /// - Driven with decay: the Cayley-Hamilton form of `driven_with_decay` (sequence.rs):
+    ///   exp(a t) = exp((r - h) t) (I + f1 Q + f2 Q^2), applied to r - r_ss and added to
+    ///   the steady state r_ss, so r' = r_ss + exp(a t)(r - r_ss); cos(beta t) - 1 is
+    ///   taken as -2 sin^2(beta t / 2), so the form holds down to small angles. Where the
+    ///   real root does not converge, the pair is not well separated (beta^2 < c/2) or the
+    ///   angle is below [`CLOSED_FORM_MIN_ANGLE`], the general propagator is used.
+    ///
+    /// Checked against `Generator::propagator` and `Generator::propagator_by_series` on
+    /// random cases (unit tests below).
+    #[inline]
+    fn propagate(&self, r: [f64; 3], det: f64, gamma: f64) -> [f64; 3] {
+        let z = -(det + self.step.offset);
+        let t = self.len;
+        if self.rho2 == 0.0 {
+            let (s, c) = libm::sincos(z * t);
+            let [d, d2] = self.decay;
+            return [d * (c * r[0] - s * r[1]), d * (s * r[0] + c * r[1]), d2 * r[2] + (d2 - 1.0)];
+        }
+        let [x, y] = self.drive;
+        if gamma == 0.0 {
+            let n2 = self.rho2 + z * z;
+            let n = libm::sqrt(n2);
+            let (sh, ch) = libm::sincos(n * t / 2.0);
+            let s = 2.0 * sh * ch;
+            let omc = 2.0 * sh * sh;
+            let k = [x / n, y / n, z / n];
+            let kr = k[0] * r[0] + k[1] * r[1] + k[2] * r[2];
+            let cross = [k[1] * r[2] - k[2] * r[1], k[2] * r[0] - k[0] * r[2], k[0] * r[1] - k[1] * r[0]];
+            return [
+                r[0] + s * cross[0] + omc * (k[0] * kr - r[0]),
+                r[1] + s * cross[1] + omc * (k[1] * kr - r[1]),
+                r[2] + s * cross[2] + omc * (k[2] * kr - r[2]),
+            ];
+        }
+        match self.driven_with_decay(r, z, gamma) {
+            Some(out) => out,
+            None => self.generator(det, gamma).propagator(t).apply(r),
+        }
+    }
+
+    /// The closed form of [`Interval::propagate`] for a driven interval with decay (None
+    /// where it does not apply).
+    #[inline]
+    fn driven_with_decay(&self, v: [f64; 3], z: f64, gamma: f64) -> Option<[f64; 3]> {
+        let [x, y] = self.drive;
+        let t = self.len;
+        let h = gamma / 2.0;
+        let rho2 = self.rho2;
+        let z2 = z * z;
+        let n2 = rho2 + z2;
+        let hz2 = h * z2;
+        // The real root of p(l) = l^3 + h l^2 + n^2 l + h z^2 in [-h, 0]: Newton steps
+        // safeguarded by bisection, as in sequence.rs.
+        let (mut lo, mut hi) = (-h, 0.0);
+        let mut r = -hz2 / n2;
+        let mut converged = false;
+        for _ in 0..60 {
+            let p = ((r + h) * r + n2) * r + hz2;
+            if p == 0.0 {
+                converged = true;
+                break;
+            }
+            if p > 0.0 {
+                hi = r
+            } else {
+                lo = r
+            }
+            let dp = (3.0 * r + 2.0 * h) * r + n2;
+            let mut next = r - p / dp;
+            let newton = next > lo && next < hi;
+            if !newton {
+                next = 0.5 * (lo + hi);
+            }
+            let dr = next - r;
+            r = next;
+            if (newton && dr.abs() <= 1e-8 * r.abs()) || hi - lo <= 1e-16 * h {
+                converged = true;
+                break;
+            }
+        }
+        if !converged {
+            return None;
+        }
+        let r = r.clamp(-h, 0.0);
+        let b = h + r;
+        let c = n2 + r * b;
+        let w2 = c - b * b / 4.0;
+        if !(w2 >= 0.5 * c) {
+            return None;
+        }
+        let beta = libm::sqrt(w2);
+        if !(beta * t >= CLOSED_FORM_MIN_ANGLE) {
+            return None;
+        }
+        let alpha = -(h + 3.0 * r) / 2.0;
+        let (sh, ch) = libm::sincos(beta * t / 2.0);
+        let sb = 2.0 * sh * ch;
+        let cbm1 = -2.0 * sh * sh;
+        let cb = 1.0 + cbm1;
+        let em1 = expm1_fast(alpha * t);
+        let re1 = em1 * cb + cbm1;
+        let im1 = (1.0 + em1) * sb;
+        let q2 = alpha * alpha + beta * beta;
+        let f2 = (im1 * alpha / beta - re1) / q2;
+        let f1 = (re1 * alpha + im1 * beta) / q2 - f2 * alpha;
+        let scale = 1.0 + expm1_fast((r - h) * t);
+        // Steady state of the optical Bloch equations (sequence.rs).
+        let hz = h * h + z2;
+        let den = rho2 + 2.0 * hz;
+        let ss = [-2.0 * (h * y + z * x) / den, -2.0 * (z * y - h * x) / den, -2.0 * hz / den];
+        let d = [v[0] - ss[0], v[1] - ss[1], v[2] - ss[2]];
+        // Q = [[-r, -z, y], [z, -r, -x], [-y, x, -h - r]].
+        let q = |u: [f64; 3]| [-r * u[0] - z * u[1] + y * u[2], z * u[0] - r * u[1] - x * u[2], -y * u[0] + x * u[1] - (h + r) * u[2]];
+        let qd = q(d);
+        let qqd = q(qd);
+        let out = [
+            ss[0] + scale * (d[0] + f1 * qd[0] + f2 * qqd[0]),
+            ss[1] + scale * (d[1] + f1 * qd[1] + f2 * qqd[1]),
+            ss[2] + scale * (d[2] + f1 * qd[2] + f2 * qqd[2]),
+        ];
+        (out[0].is_finite() && out[1].is_finite() && out[2].is_finite()).then_some(out)
     }
 }
 
@@ -963,9 +1123,8 @@ impl Simulation {
         for s in &probe.steps {
             let n = if s.omega != 0.0 { subs } else { 1 };
             let len = s.duration_s / n as f64;
-            let drive = [s.omega * libm::cos(s.phase), s.omega * libm::sin(s.phase)];
             for _ in 0..n {
-                intervals.push(Interval { step: *s, len, drive });
+                intervals.push(Interval::new(*s, len, probe.gamma));
             }
         }
         let probe_s = probe.duration_s();
@@ -1080,7 +1239,7 @@ impl Simulation {
             let err_hz = self.nu0 * j / iv.len + c;
             err_cycles += err_hz * iv.len;
             let det = 2.0 * PI * (self.side * self.op.detuning_hz + err_hz) * self.detuning_factor;
-            r = iv.generator(det, self.gamma).propagator(iv.len).apply(r);
+            r = iv.propagate(r, det, self.gamma);
         }
         let p = ((r[2] + 1.0) / 2.0).clamp(0.0, 1.0);
         let pm = self.ro.measured(p).clamp(0.0, 1.0);
