@@ -1255,39 +1255,49 @@ impl Interval {
         let z2 = z * z;
         let n2 = rho2 + z2;
         let hz2 = h * z2;
-        // The real root of p(l) = l^3 + h l^2 + n^2 l + h z^2 in [-h, 0]: Newton steps
-        // safeguarded by bisection, as in sequence.rs.
-        let (mut lo, mut hi) = (-h, 0.0);
+        // The real root of p(l) = l^3 + h l^2 + n^2 l + h z^2 in [-h, 0]. With l = h u,
+        // u = -z^2/n^2 - (h/n)^2 (u^3 + u^2), a contraction of factor at most (h/n)^2: two
+        // rounds give r = -h z^2/n^2 - h^3 z^4 rho^2 / n^8 with a relative error below
+        // (h/n)^4 / (1 - (h/n)^2), rounding when (h/n)^2 <= 1e-8 (weak decay, the common
+        // case). Otherwise Newton steps safeguarded by bisection, as in sequence.rs.
         let inv_n2 = 1.0 / n2;
-        let mut r = -hz2 * inv_n2;
-        let mut converged = false;
-        for _ in 0..60 {
-            let p = ((r + h) * r + n2) * r + hz2;
-            if p == 0.0 {
-                converged = true;
-                break;
+        let q = z2 * inv_n2;
+        let eps2 = h * h * inv_n2;
+        let r = if eps2 <= 1e-8 {
+            -h * q * (1.0 + eps2 * q * rho2 * inv_n2)
+        } else {
+            let (mut lo, mut hi) = (-h, 0.0);
+            let mut r = -hz2 * inv_n2;
+            let mut converged = false;
+            for _ in 0..60 {
+                let p = ((r + h) * r + n2) * r + hz2;
+                if p == 0.0 {
+                    converged = true;
+                    break;
+                }
+                if p > 0.0 {
+                    hi = r
+                } else {
+                    lo = r
+                }
+                let dp = (3.0 * r + 2.0 * h) * r + n2;
+                let mut next = r - p / dp;
+                let newton = next > lo && next < hi;
+                if !newton {
+                    next = 0.5 * (lo + hi);
+                }
+                let dr = next - r;
+                r = next;
+                if (newton && dr.abs() <= 1e-8 * r.abs()) || hi - lo <= 1e-16 * h {
+                    converged = true;
+                    break;
+                }
             }
-            if p > 0.0 {
-                hi = r
-            } else {
-                lo = r
+            if !converged {
+                return None;
             }
-            let dp = (3.0 * r + 2.0 * h) * r + n2;
-            let mut next = r - p / dp;
-            let newton = next > lo && next < hi;
-            if !newton {
-                next = 0.5 * (lo + hi);
-            }
-            let dr = next - r;
-            r = next;
-            if (newton && dr.abs() <= 1e-8 * r.abs()) || hi - lo <= 1e-16 * h {
-                converged = true;
-                break;
-            }
-        }
-        if !converged {
-            return None;
-        }
+            r
+        };
         let r = r.clamp(-h, 0.0);
         let b = h + r;
         let c = n2 + r * b;
