@@ -13,15 +13,19 @@
 // This module has no DOM dependence besides the streams, so the fuzz harness runs it in Node.
 
 import type { Problem } from "./engine";
-import { MAX_FILE_BYTES, readDoc, toDoc, type State, type WorkspaceDoc } from "./workspace";
+import { readDoc, toDoc, type State, type WorkspaceDoc } from "./workspace";
 
 /** The link format this page writes; the versions it reads. */
 export const LINK_VERSION = 1;
 export const READABLE_LINK_VERSIONS = [1];
 /** Longest fragment read, characters (about Chromium's limit on a whole URL). */
 export const MAX_LINK_CHARS = 2 * 1024 * 1024;
-/** Largest workspace a link may inflate to, bytes (as for workspace files). */
-export const MAX_INFLATED_BYTES = MAX_FILE_BYTES;
+/**
+ * Largest workspace a link may inflate to, bytes: 1 MiB, a fifth of a workspace file's cap
+ * (a workspace of eight designs with 10 000-point spectrum tables takes about 2.5 MB of JSON
+ * and has to travel as a file) so that reading any link stays within 100 ms.
+ */
+export const MAX_INFLATED_BYTES = 1024 * 1024;
 
 export type LinkKind = "share" | "embed";
 
