@@ -5,7 +5,7 @@
 // on a slide. Files are handed to the browser as blob: URLs; nothing leaves the page.
 
 import type { Design, Evaluation, Mechanism } from "./engine";
-import { numberParts, numberText, tauName } from "./format";
+import { numberParts, tauName } from "./format";
 import { sigmaRange } from "./plots";
 
 export const MECHANISM_TEXT: Record<Mechanism, string> = { laser: "laser", projection: "quantum projection noise", dick: "Dick effect" };
@@ -16,6 +16,8 @@ export interface Result {
   colour: number;
   design: Design;
   evaluation: Evaluation;
+  /** The selected design: its breakdown is drawn in the figure, as on the page. */
+  selected?: boolean;
 }
 
 /** Escapes text for XML and HTML content and attribute values. */
@@ -85,10 +87,11 @@ function fmt(x: number): string {
 
 /**
  * The Allan-deviation figure of `results` as a standalone SVG document: decade grid, log axes,
- * each design's total curve (with its breakdown when `breakdown`), the target line, a legend
- * and the model-estimate note. Sizes in CSS pixels.
+ * each design's total curve (with its breakdown for the selected design, or for every design
+ * when `breakdownAll`), the target line, a legend and the model-estimate note. Sizes in CSS pixels.
  */
-export function sigmaSvg(results: Result[], target: number | null, breakdown: boolean, width = 960, height = 600): string {
+export function sigmaSvg(results: Result[], target: number | null, breakdownAll: boolean, width = 960, height = 600): string {
+  const breakdown = breakdownAll || results.some((r) => r.selected);
   const range = sigmaRange(
     results.map((r) => r.evaluation),
     target,
@@ -155,7 +158,7 @@ export function sigmaSvg(results: Result[], target: number | null, breakdown: bo
     const colour = PALETTE[r.colour % PALETTE.length];
     const c = r.evaluation.curve;
     out.push(`<g stroke="${colour}">`);
-    if (breakdown) {
+    if (breakdownAll || r.selected) {
       for (const k of ["free_laser", "laser", "projection", "dick"] as const) {
         const d = path(c.tau_s, c[k]);
         if (d) out.push(`<path class="${k}" d="${d}" ${STYLES[k]}/>`);
@@ -167,7 +170,7 @@ export function sigmaSvg(results: Result[], target: number | null, breakdown: bo
   }
   out.push(`</g>`);
   if (target !== null && Number.isFinite(target) && target >= yMin && target <= yMax) {
-    out.push(`<text x="${left + 8}" y="${fmt(ly(target) - 6)}" fill="#14171a" font-size="13">target ${escapeXml(numberText(target, 2))}</text>`);
+    out.push(`<text x="${left + 8}" y="${fmt(ly(target) - 6)}" fill="#14171a" font-size="13">target ${escapeXml(plainNumber(target, 2))}</text>`);
   }
   // Legend: designs in two columns, then the line styles.
   let y = top + ph + 78;

@@ -22,8 +22,8 @@ function current(s: Slot): s is Slot & { evaluation: NonNullable<Slot["evaluatio
   return s.evaluation !== null && s.problems.length === 0 && s.drafts.size === 0;
 }
 
-function result(s: Slot): Result {
-  return { name: s.design.name, colour: s.colour, design: s.design, evaluation: s.evaluation! };
+function result(s: Slot, selected = false): Result {
+  return { name: s.design.name, colour: s.colour, design: s.design, evaluation: s.evaluation!, selected };
 }
 
 /** The workspace reduced to one design (the pair then compares it with itself), for an embed of one design. */
@@ -69,7 +69,7 @@ export function mountShareCard(root: HTMLElement, report: HTMLElement, hooks: Sh
     }
     return s;
   };
-  const allResults = (): Result[] => hooks.state().slots.filter(current).map(result);
+  const allResults = (): Result[] => hooks.state().slots.filter(current).map((s) => result(s));
   const embedWhich = h("select", { id: "embed-which" }, h("option", { text: "all designs (comparison)", attrs: { value: "all" } }), h("option", { text: "the selected design", attrs: { value: "one" } }));
 
   const figure = (): { svg: string; name: string } | null => {
@@ -79,12 +79,12 @@ export function mountShareCard(root: HTMLElement, report: HTMLElement, hooks: Sh
       .state()
       .slots.filter(current)
       .sort((a, b) => Number(a === sel) - Number(b === sel))
-      .map(result);
+      .map((s) => result(s, s === sel));
     if (results.length === 0) {
       say("No design has a current result to draw.");
       return null;
     }
-    return { svg: sigmaSvg(results, hooks.state().target, results.length === 1 || hooks.breakdownAll()), name: results.length === 1 ? fileStem(results[0].name) : "clockwright-comparison" };
+    return { svg: sigmaSvg(results, hooks.state().target, hooks.breakdownAll()), name: results.length === 1 ? fileStem(results[0].name) : "clockwright-comparison" };
   };
 
   root.append(
