@@ -5,7 +5,7 @@
 import { clear, h, rich } from "./dom";
 import type { Design, Evaluation, Mechanism } from "./engine";
 import { MECHANISM_TEXT, plainNumber, type Result } from "./exports";
-import { appendDuration, appendNumber, tauName } from "./format";
+import { appendDuration, appendNumber, inputText, tauName } from "./format";
 
 /**
  * The methods the model uses and their references (as in README.md, "Methods and
@@ -162,7 +162,8 @@ export function inputRows(design: Design): [string, string][] {
     } else if (v !== null && typeof v === "object") {
       for (const [k, x] of Object.entries(v)) walk(x, path === "" ? k : `${path}.${k}`);
     } else {
-      rows.push([path, v === null ? "none" : typeof v === "number" ? plainNumber(v, 6) : String(v)]);
+      // Numbers exactly as the design file holds them.
+      rows.push([path, v === null ? "none" : typeof v === "number" ? inputText(v) : String(v)]);
     }
   };
   walk(design, "");
