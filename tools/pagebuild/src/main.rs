@@ -605,6 +605,18 @@ mod tests {
     }
 
     #[test]
+    fn zopfli_blocks_inflate_to_the_same_bytes() {
+        // Another implementation (miniz_oxide) must read the zlib data back exactly, checksum included.
+        let mut data: Vec<u8> = (0..50_000u32).map(|i| (i.wrapping_mul(2_654_435_761) >> 13) as u8 & 0x3f).collect();
+        data.extend_from_slice(&[7u8; 10_000]);
+        for input in [&data[..], b"", b"x"] {
+            let packed = zlib(input).unwrap();
+            assert_eq!(miniz_oxide::inflate::decompress_to_vec_zlib(&packed).unwrap(), input);
+        }
+        assert!(zlib(&data).unwrap().len() < data.len() / 2);
+    }
+
+    #[test]
     fn csp_hash_of_known_text() {
         // sha256("abc") in base64.
         assert_eq!(csp_hash("abc"), "sha256-ungWv48Bz+pBQUDeXa4iI7ADYaOWF3qctBD/YfIAFa0=");
