@@ -172,6 +172,19 @@ test("exports download and parse: design JSON, curve and breakdown CSV equal the
     assert.equal(cells.bad, 0);
     assert.equal(cells.first, hostile);
     assert.equal(cells.rows, 5);
+
+    // An invalid design is not exported: a message instead of a download.
+    let downloads = 0;
+    page.on("download", () => downloads++);
+    await page.locator('[data-path="atoms.count"]').fill("0");
+    await page.click("#export-json");
+    await page.waitForFunction(() => document.querySelector(".share-status")?.textContent.includes("Fix the marked fields of the selected design"));
+    await page.click("#export-csv");
+    await page.waitForFunction(() => document.querySelector(".share-status")?.textContent.includes("no current result"));
+    await page.click("#copy-link");
+    await page.waitForFunction(() => document.querySelector(".share-status")?.textContent.includes("links and exports carry only valid designs"));
+    await page.waitForTimeout(300);
+    assert.equal(downloads, 0);
     assert.deepEqual(b.errors, []);
   } finally {
     await b.close();

@@ -116,7 +116,11 @@ export function mountShareCard(root: HTMLElement, report: HTMLElement, hooks: Sh
       { class: "row-buttons" },
       button("export-json", "Design JSON", () => {
         const s = hooks.selected();
-        if (!s || !needValid()) return;
+        if (!s) return;
+        if (s.problems.length > 0 || s.drafts.size > 0) {
+          say("Fix the marked fields of the selected design first: a design file holds only a valid design.");
+          return;
+        }
         download(`${fileStem(s.design.name)}.json`, designJson(s.design), "application/json");
         say(`Saved ${fileStem(s.design.name)}.json.`);
       }),
