@@ -148,3 +148,30 @@ test("tampered, truncated, unknown-version and invalid links give a clear error 
     await b.close();
   }
 });
+
+test("a workspace too large for a link is refused with a message, not a link that would not open", async () => {
+  const b = await launch({ acceptDownloads: true });
+  try {
+    await openPage(b.page);
+    const page = b.page;
+    const doc = await savedWorkspace(page);
+    // Two designs with 12 000-row spectrum tables: about 1.1 MB of JSON.
+    const points = Array.from({ length: 12_000 }, (_, i) => [1e-3 * Math.exp(i * 6e-4) * (1 + 1e-13 * i), 1e-30 * Math.exp(-i * 3e-4) * (1 + 1e-13 * i)]);
+    for (const k of [0, 1]) doc.designs[k].design.laser.table = { unit: "s_y", points };
+    const { writeFile } = await import("node:fs/promises");
+    const { join } = await import("node:path");
+    const { artifactsDir } = await import("./helpers.mjs");
+    const file = join(await artifactsDir(), "workspace-large.json");
+    await writeFile(file, JSON.stringify(doc));
+    assert.ok(JSON.stringify(doc).length > 1024 * 1024);
+    await page.setInputFiles("#load-ws-file", file);
+    await page.waitForFunction(() => document.querySelector("#ws-message")?.textContent.includes("Loaded"), null, { timeout: 60_000 });
+    await page.click("#copy-link");
+    await page.waitForFunction(() => document.querySelector(".share-status")?.textContent.startsWith("No link:"), null, { timeout: 30_000 });
+    assert.match(await page.locator(".share-status").textContent(), /more than the 1048576 a link may carry; send it as a file/);
+    assert.doesNotMatch(await page.inputValue("#share-output"), /#share=/);
+    assert.deepEqual(b.errors, []);
+  } finally {
+    await b.close();
+  }
+});

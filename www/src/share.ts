@@ -143,6 +143,9 @@ async function inflateRaw(bytes: Uint8Array<ArrayBuffer>, cap: number): Promise<
 /** The fragment body (without "#") of a link to `doc`: "share=v1.<crc>.<data>" or "embed=…". */
 export async function encodeLink(doc: WorkspaceDoc, kind: LinkKind): Promise<string> {
   const json = new TextEncoder().encode(JSON.stringify(doc));
+  if (json.length > MAX_INFLATED_BYTES) {
+    throw new LinkError([problem(`the workspace takes ${json.length} bytes, more than the ${MAX_INFLATED_BYTES} a link may carry; send it as a file (Save workspace…)`)]);
+  }
   const crc = crc32(json).toString(16).padStart(8, "0");
   return `${kind}=v${LINK_VERSION}.${crc}.${toBase64url(await deflateRaw(json))}`;
 }

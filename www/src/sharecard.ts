@@ -7,7 +7,7 @@ import { h } from "./dom";
 import { embedSnippet, pageAddress } from "./embed";
 import { breakdownCsv, curveCsv, designJson, download, fileStem, htmlTable, markdownTable, sigmaSvg, svgToPng, type Result } from "./exports";
 import { drawReport, proposalText } from "./report";
-import { encodeLink } from "./share";
+import { encodeLink, LinkError } from "./share";
 import { isValid, pairDoc, toDoc, type Slot, type State, type WorkspaceDoc } from "./workspace";
 
 export interface ShareHooks {
@@ -41,7 +41,7 @@ export function mountShareCard(root: HTMLElement, report: HTMLElement, hooks: Sh
     b.addEventListener("click", () => {
       Promise.resolve()
         .then(run)
-        .catch((err: unknown) => say(`That did not work: ${err instanceof Error ? err.message : String(err)}`));
+        .catch((err: unknown) => say(err instanceof LinkError ? `No link: ${err.problems.map((p) => p.allowed).join("; ")}.` : `That did not work: ${err instanceof Error ? err.message : String(err)}`));
     });
     return b;
   };
