@@ -58,6 +58,8 @@ test("the embed view renders in an iframe of a file:// host page, read-only, wit
       assert.equal(plot.curves.length, n);
       for (const [len, width] of plot.curves) assert.ok(len > 100 && width > 50, JSON.stringify(plot));
       assert.equal(await frame.locator(".embed-table tbody tr").count(), n);
+      const fit = await frame.evaluate(() => ({ content: document.documentElement.scrollHeight, frame: window.innerHeight }));
+      assert.ok(fit.content <= fit.frame, `the view fits the snippet's frame without scrolling: ${JSON.stringify(fit)}`);
       assert.match(await frame.locator("#embed-view .estimate-note").textContent(), /measured performance decides/);
       // Read-only: no editor, no inputs.
       assert.equal(await frame.locator("#editor-panel").isVisible(), false);

@@ -16,10 +16,12 @@ export function pageAddress(loc: Location): string {
   return loc.href.split("#")[0];
 }
 
-/** An <iframe> snippet that embeds `address` (the page with an "#embed=…" fragment); every value escaped. */
-export function embedSnippet(address: string, title: string): string {
+/** An <iframe> snippet that embeds `address` (the page with an "#embed=…" fragment) of `designs` designs; every value escaped. */
+export function embedSnippet(address: string, title: string, designs: number): string {
   const esc = escapeXml;
-  return `<iframe src="${esc(address)}" title="${esc(title)}" width="760" height="640" style="border:0;max-width:100%" loading="lazy" referrerpolicy="no-referrer"></iframe>`;
+  // Tall enough for the plot, its key, a table row per design and the note without scrolling.
+  const height = 700 + 60 * Math.max(1, designs);
+  return `<iframe src="${esc(address)}" title="${esc(title)}" width="760" height="${height}" style="border:0;max-width:100%" loading="lazy" referrerpolicy="no-referrer"></iframe>`;
 }
 
 /**
@@ -50,7 +52,8 @@ export async function mountEmbed(doc: Document, hash: string): Promise<void> {
   const editor = h("a", { class: "embed-open", text: "Open in the full editor ↗", attrs: { href: `${pageAddress(doc.location)}#share=${hash.replace(/^#?embed=/, "")}`, target: "_blank", rel: "noopener noreferrer" } });
   const head = h("div", { class: "embed-head" }, h("h1", { text: title }), editor);
   const plot = h("div", { id: "embed-plot", class: "plot" });
-  const legend = h("div", { class: "legend" });
+  // A comparison draws the totals only: its key needs no line styles.
+  const legend = h("div", { class: shown.length === 1 ? "legend" : "legend totals-only" });
   const table = h("table", { class: "comparison embed-table" });
   const note = h("p", { class: "estimate-note", attrs: { role: "note" } }, h("strong", { text: "Model estimate" }), " (Clockwright): projections rest on the model's assumptions and the numbers entered; measured performance decides.");
   root.append(head, plot, legend, h("div", { class: "table-wrap" }, table), note);

@@ -108,7 +108,7 @@ export function mountShareCard(root: HTMLElement, report: HTMLElement, hooks: Sh
         const one = embedWhich.value === "one" ? hooks.selected() : null;
         const doc = one ? singleDesignDoc(st, one) : toDoc(st);
         const title = one ? `Clockwright: ${one.design.name}` : "Clockwright: comparison of designs";
-        await copy(embedSnippet(`${pageAddress(location)}#${await encodeLink(doc, "embed")}`, title), "embed snippet");
+        await copy(embedSnippet(`${pageAddress(location)}#${await encodeLink(doc, "embed")}`, title, doc.designs.length), "embed snippet");
       }),
     ),
     h(
