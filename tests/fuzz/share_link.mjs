@@ -10,8 +10,10 @@
 // or negative numbers, wrong types, markup, deep nesting, long strings, keys removed or added;
 // then packed again with a correct checksum, so the workspace reader is reached) and the bytes
 // before compression (invalid UTF-8, broken JSON). Each input must give either a workspace or
-// the reader's clear problems ({path, value, allowed}); any other exception, or a run over
-// 100 ms, is a failure. Prints the counts as one JSON line; exit code 1 on any failure.
+// the reader's clear problems ({path, value, allowed}); any other exception, or a read over
+// 100 ms, is a failure (an input over the limit once is timed three more times and the
+// fastest counts, so a pause of a busy machine is not taken for a slow input; "retimed" counts
+// them). Prints the counts as one JSON line; exit code 1 on any failure.
 // Needs the built page (./dev page --no-serve) for www/dist/pkg.
 
 import { build } from "esbuild";
@@ -188,7 +190,7 @@ async function main() {
     packJson(deep(33)),
     packJson(Array.from({ length: 200_000 }, (_, i) => i)),
   ];
-  const counts = { worstMs: [], inputs: 0, accepted: 0, rejected: 0, escaped: 0, slow: 0, maxMs: 0, byLevel: { text: 0, json: 0, bytes: 0 }, byProblem: {} };
+  const counts = { worstMs: [], retimed: 0, inputs: 0, accepted: 0, rejected: 0, escaped: 0, slow: 0, maxMs: 0, byLevel: { text: 0, json: 0, bytes: 0 }, byProblem: {} };
   const failures = [];
   const started = performance.now();
   for (let n = 0; n < count + worst.length; n++) {
@@ -217,7 +219,18 @@ async function main() {
       if (failures.length < 10) failures.push({ input: input.slice(0, 300), error: String(err?.stack ?? err).slice(0, 500) });
       continue;
     } finally {
-      const dt = performance.now() - t0;
+      let dt = performance.now() - t0;
+      if (dt > LIMIT_MS) {
+        // Over the limit once: time the same input three more times and keep the fastest, so
+        // that a pause of the machine (another process, a garbage collection) is told apart
+        // from an input that is slow to read. Both are counted.
+        counts.retimed++;
+        for (let k = 0; k < 3; k++) {
+          const t1 = performance.now();
+          await reader.readLink(input).catch(() => undefined);
+          dt = Math.min(dt, performance.now() - t1);
+        }
+      }
       counts.maxMs = Math.max(counts.maxMs, dt);
       if (n >= count) counts.worstMs.push(Math.round(dt * 10) / 10);
       if (dt > LIMIT_MS) {
