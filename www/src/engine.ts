@@ -1,4 +1,4 @@
-// The engine: the WebAssembly binding, loaded from the base64 data block inlined in the page.
+// The engine: the WebAssembly binding, loaded from the compressed data block inlined in the page.
 
 import init, * as cw from "../dist/pkg/clockwright_wasm.js";
 import type { Problem } from "../dist/pkg/clockwright_wasm.js";
@@ -30,7 +30,7 @@ export type {
 } from "../dist/pkg/clockwright_wasm.js";
 
 /**
- * Reads the engine module from the data block with id `cw-wasm` (zlib-compressed, base64),
+ * Reads the engine module from the data block with id `cw-wasm` (zlib-compressed, base 85),
  * inflates it with the browser's DecompressionStream and instantiates it. Nothing is fetched.
  */
 export async function loadEngine(doc: Document): Promise<void> {
@@ -40,12 +40,16 @@ export async function loadEngine(doc: Document): Promise<void> {
   if (typeof DecompressionStream === "undefined") {
     throw new Error("this browser lacks DecompressionStream; use a current Chromium, Firefox or Safari");
   }
-  const stream = new Blob([decodeBase85(text)]).stream().pipeThrough(new DecompressionStream("deflate"));
-  const bytes = await new Response(stream).arrayBuffer();
-  compiled = await WebAssembly.compile(bytes);
+  compiled = await WebAssembly.compile(await inflate(text));
   await init({ module_or_path: compiled });
   const worker = doc.getElementById("cw-worker")?.textContent?.trim() ?? "";
-  workerSource = worker === "" ? "" : new TextDecoder().decode(decodeBase64(worker));
+  workerSource = worker === "" ? "" : new TextDecoder().decode(await inflate(worker));
+}
+
+/** A data block of the page: zlib-compressed, in base 85 (tools/pagebuild). */
+async function inflate(text: string): Promise<ArrayBuffer> {
+  const stream = new Blob([decodeBase85(text)]).stream().pipeThrough(new DecompressionStream("deflate"));
+  return new Response(stream).arrayBuffer();
 }
 
 let compiled: WebAssembly.Module | null = null;
@@ -79,13 +83,6 @@ export function decodeBase85(text: string): Uint8Array<ArrayBuffer> {
     out[j + 3] = v & 255;
   }
   return out.slice(0, n);
-}
-
-function decodeBase64(text: string): Uint8Array<ArrayBuffer> {
-  const raw = atob(text);
-  const out = new Uint8Array(raw.length);
-  for (let i = 0; i < raw.length; i++) out[i] = raw.charCodeAt(i);
-  return out;
 }
 
 /** The background worker for long jobs (made on first use from the page's cw-worker block). */

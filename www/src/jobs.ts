@@ -1,5 +1,5 @@
 // Long computations in a background worker, with progress and cancel. The worker's code sits
-// in the page as a data block (id `cw-worker`, base64) and runs from a blob: URL; the engine
+// in the page as a data block (id `cw-worker`, compressed, base 85) and runs from a blob: URL; the engine
 // module the page compiled is handed to it, so nothing is fetched.
 
 import type { Problem } from "../dist/pkg/clockwright_wasm.js";

@@ -8,6 +8,9 @@ import { inputText, parseNumber } from "./format";
 import { mountPairView, type PairView } from "./pairview";
 import { drawLegend, drawLineShape, drawSensitivity, drawSigma, watchWidth } from "./plots";
 import { drawDetails, drawTable } from "./results";
+import { mountEmbed } from "./embed";
+import { linkKind, readLink } from "./share";
+import { mountShareCard } from "./sharecard";
 import { mountSimulation } from "./simview";
 import { mountStudy } from "./studyview";
 import {
@@ -50,6 +53,12 @@ class App {
   private frameUsed = false;
   private dirty = new Set<Slot>();
   private sim: { refresh(): void } | null = null;
+  private share: { refresh(): void } | null = null;
+  /**
+   * A workspace opened from a share link is not autosaved until the reader keeps it, so a link
+   * never replaces the reader's own autosaved work without being asked (see the link banner).
+   */
+  private holdAutosave = false;
   private all = false;
   /** What the design list was last drawn from. */
   private listKey = "";
@@ -77,17 +86,23 @@ class App {
     selectedName: byId<HTMLElement>("selected-name"),
     theme: byId<HTMLSelectElement>("theme"),
     breakdown: byId<HTMLInputElement>("breakdown-all"),
+    banner: byId<HTMLElement>("link-banner"),
   };
 
-  constructor(presets: PresetInfo[]) {
+  /** `linked`: what the share link in the address held, if there is one. */
+  constructor(presets: PresetInfo[], linked: Awaited<ReturnType<typeof readLink>> | null) {
     this.demos = engine.demoDesigns();
     const restored = restore(this.storage);
-    if (restored && "state" in restored) {
+    if (linked && "state" in linked) {
+      this.state = linked.state;
+      this.holdAutosave = true;
+    } else if (restored && "state" in restored) {
       this.state = restored.state;
     } else {
       this.state = stateFromDesigns(engine.demoDesigns(), DEFAULT_TARGET);
       if (restored) this.message("The stored workspace could not be read, so the demo designs were loaded:", restored.problems);
     }
+    if (linked) this.linkBanner(linked);
     this.editor = new Editor(this.els.editor, { changed: (s) => this.request(s), restructured: (s, f) => this.restructured(s, f) }, presets);
     this.pairView = mountPairView(byId("pair-view"), { changed: () => this.persist() });
   }
@@ -110,7 +125,7 @@ class App {
     e.save.addEventListener("click", () => this.saveFile());
     e.load.addEventListener("click", () => e.loadFile.click());
     e.loadFile.addEventListener("change", () => this.loadFile());
-    e.reset.addEventListener("click", () => this.replaceState(stateFromDesigns(engine.demoDesigns(), this.state.target), "The demo designs were loaded."));
+    e.reset.addEventListener("click", () => (this.endLinkHold(), this.replaceState(stateFromDesigns(engine.demoDesigns(), this.state.target), "The demo designs were loaded.")));
     this.setupTheme();
     e.breakdown.addEventListener("change", () => this.drawPlots());
     for (const el of [e.sigma, e.g, e.line]) watchWidth(el, () => this.requestRedraw());
@@ -118,6 +133,94 @@ class App {
     this.editor.render(this.selected());
     this.requestAll();
     mountStudy(byId("study"), { slots: () => this.state.slots, selected: () => this.selected(), apply: (s, d) => ((s.design = d), s.drafts.clear(), this.restructured(s)) });
+    this.share = mountShareCard(byId("share"), byId("report"), { state: () => this.state, selected: () => this.selected(), breakdownAll: () => this.els.breakdown.checked });
+    this.share.refresh();
+    // A link pasted into the address bar of the open page changes only the fragment.
+    window.addEventListener("hashchange", () => void this.followLink());
+  }
+
+  // ----- share links ---------------------------------------------------------------------------
+
+  /** Hides the link banner and takes the link out of the address (a reload then opens the autosaved workspace). */
+  private closeBanner(): void {
+    const el = this.els.banner;
+    el.hidden = true;
+    clear(el);
+    if (linkKind(location.hash) === null) return;
+    try {
+      history.replaceState(null, "", location.href.split("#")[0]);
+    } catch {
+      location.hash = "";
+    }
+  }
+
+  /** A workspace the reader chose (a file, the demos) ends the hold of a link's workspace. */
+  private endLinkHold(): void {
+    if (!this.holdAutosave) return;
+    this.holdAutosave = false;
+    this.closeBanner();
+  }
+
+  private async followLink(): Promise<void> {
+    const kind = linkKind(location.hash);
+    if (kind === null) return;
+    if (kind === "embed") {
+      location.reload();
+      return;
+    }
+    const linked = await readLink(location.hash);
+    if ("state" in linked) {
+      this.holdAutosave = true;
+      this.replaceState(linked.state, "Opened the workspace of the link.");
+    }
+    this.linkBanner(linked);
+  }
+
+  /**
+   * The banner about a link: a bad one names its problems (the workspace on screen, and the
+   * autosaved one, are unchanged); a good one says that the reader's own workspace is kept
+   * until they choose to keep the link's one instead.
+   */
+  private linkBanner(linked: Awaited<ReturnType<typeof readLink>>): void {
+    const el = this.els.banner;
+    clear(el);
+    el.hidden = false;
+    const close = () => this.closeBanner();
+    if (!("state" in linked)) {
+      el.className = "link-banner bad";
+      el.setAttribute("role", "alert");
+      el.append(
+        h("p", { text: "The link in the address could not be opened, so nothing was loaded from it; your workspace is unchanged. Problems:" }),
+        h("ul", {}, ...linked.problems.slice(0, 12).map((p) => h("li", { text: problemText(p) }))),
+      );
+      if (linked.problems.length > 12) el.append(h("p", { text: `… and ${linked.problems.length - 12} more.` }));
+      const b = h("button", { class: "small", text: "Dismiss", attrs: { type: "button" } });
+      b.addEventListener("click", close);
+      el.append(b);
+      return;
+    }
+    el.className = "link-banner";
+    el.setAttribute("role", "status");
+    const keep = h("button", { id: "link-keep", class: "small", text: "Keep this workspace", attrs: { type: "button" } });
+    const back = h("button", { id: "link-back", class: "small", text: "Back to my workspace", attrs: { type: "button" } });
+    keep.addEventListener("click", () => {
+      this.holdAutosave = false;
+      this.persist();
+      close();
+      this.message("Kept the workspace of the link; it is autosaved from now on.");
+    });
+    back.addEventListener("click", () => {
+      this.holdAutosave = false;
+      const own = restore(this.storage);
+      close();
+      this.replaceState(own && "state" in own ? own.state : stateFromDesigns(engine.demoDesigns(), DEFAULT_TARGET), own && "state" in own ? "Your own workspace is back." : "You had no saved workspace, so the demo designs were loaded.");
+    });
+    el.append(
+      h("p", {
+        text: "This workspace was opened from a link. Your own autosaved workspace is kept and is not overwritten: changes here are not autosaved unless you keep this workspace (it then replaces your autosaved one).",
+      }),
+      h("div", { class: "row-buttons" }, keep, back),
+    );
   }
 
   // ----- state ---------------------------------------------------------------------------
@@ -297,7 +400,7 @@ class App {
   }
 
   private persist(): void {
-    if (isValid(this.state)) store(this.storage, this.state);
+    if (!this.holdAutosave && isValid(this.state)) store(this.storage, this.state);
   }
 
   private redraw(): void {
@@ -315,6 +418,7 @@ class App {
     this.showTargetProblem();
     this.pairView.update(this.state);
     this.sim?.refresh();
+    this.share?.refresh();
   }
 
   private drawPlots(): void {
@@ -426,6 +530,7 @@ class App {
       this.message(`${f.name} was not loaded; the workspace is unchanged. Problems:`, r.problems);
       return;
     }
+    this.endLinkHold();
     this.replaceState(r.state, `Loaded ${f.name}.`);
   }
 
@@ -467,10 +572,15 @@ async function main(): Promise<void> {
     fatal(`The engine could not be started: ${(err as Error).message}`);
     return;
   }
+  const kind = linkKind(location.hash);
+  if (kind === "embed") {
+    await mountEmbed(document, location.hash);
+    return;
+  }
   let presets: PresetInfo[] = [];
   try {
     presets = engine.presets();
-    new App(presets).start();
+    new App(presets, kind === "share" ? await readLink(location.hash) : null).start();
   } catch (err) {
     fatal(`The page could not start: ${problemsOf(err).map(problemText).join("; ")}`);
   }

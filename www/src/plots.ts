@@ -189,31 +189,19 @@ function emptyPlot(container: HTMLElement, b: Box, label: string, note: string, 
 }
 
 /**
- * Allan deviation against averaging time for every design: total solid, the mechanisms
- * dashed or dotted, the free-running laser faint, the target as a grey line. Axes and grid
- * are kept while their ranges stay; only the curves of designs whose result changed are redrawn.
+ * The decade-aligned axis ranges of the Allan-deviation plot of `evaluations` (with the target
+ * line when it is near the curves), or null when nothing finite can be plotted. The page's
+ * plot and the exported figure (exports.ts) both use it.
  */
-export function drawSigma(container: HTMLElement, sets: CurveSet[], target: number | null, breakdownForAll: boolean): void {
-  const label = "Allan deviation sigma_y(tau) of every design against averaging time, log-log";
-  const b = box(container, 0.56, 300, 500);
-  const last = sigmaViews.get(container);
-  const empty = (note: string): void => {
-    const frame = `empty|${b.width}|${b.height}|${note}`;
-    emptyPlot(container, b, label, note, frame, last?.frame);
-    sigmaViews.set(container, { frame, plot: null, path: () => "", designs: new Map() });
-  };
-  if (sets.length === 0) {
-    empty("No design to plot");
-    return;
-  }
+export function sigmaRange(evaluations: Evaluation[], target: number | null): { xMin: number; xMax: number; yMin: number; yMax: number } | null {
   let tLo = Infinity;
   let tHi = 0;
   let yLo = Infinity;
   let yHi = 0;
   let totalLo = Infinity;
   let totalHi = 0;
-  for (const set of sets) {
-    const c = set.evaluation.curve;
+  for (const e of evaluations) {
+    const c = e.curve;
     const n = c.tau_s.length;
     for (let i = 0; i < n; i++) {
       const t = c.tau_s[i];
@@ -233,10 +221,7 @@ export function drawSigma(container: HTMLElement, sets: CurveSet[], target: numb
       if (positive(c.free_laser[i]) && c.free_laser[i] < totalHi * 100) yHi = Math.max(yHi, c.free_laser[i]);
     }
   }
-  if (!(tHi > tLo) || !(yHi > 0)) {
-    empty("No finite values to plot");
-    return;
-  }
+  if (!(tHi > tLo) || !(yHi > 0)) return null;
   // Keep the view on the totals: mechanisms far below them are cut off at three decades.
   yLo = Math.max(yLo, totalLo / 1e3);
   if (target !== null && positive(target) && target > yLo / 10 && target < yHi * 10) {
@@ -247,6 +232,33 @@ export function drawSigma(container: HTMLElement, sets: CurveSet[], target: numb
   const yMax = 10 ** Math.ceil(Math.log10(yHi));
   const xMin = 10 ** Math.floor(Math.log10(tLo) + 1e-9);
   const xMax = 10 ** Math.ceil(Math.log10(tHi) - 1e-9);
+  return { xMin, xMax, yMin, yMax };
+}
+
+/**
+ * Allan deviation against averaging time for every design: total solid, the mechanisms
+ * dashed or dotted, the free-running laser faint, the target as a grey line. Axes and grid
+ * are kept while their ranges stay; only the curves of designs whose result changed are redrawn.
+ */
+export function drawSigma(container: HTMLElement, sets: CurveSet[], target: number | null, breakdownForAll: boolean): void {
+  const label = "Allan deviation sigma_y(tau) of every design against averaging time, log-log";
+  const b = box(container, 0.56, 300, 500);
+  const last = sigmaViews.get(container);
+  const empty = (note: string): void => {
+    const frame = `empty|${b.width}|${b.height}|${note}`;
+    emptyPlot(container, b, label, note, frame, last?.frame);
+    sigmaViews.set(container, { frame, plot: null, path: () => "", designs: new Map() });
+  };
+  if (sets.length === 0) {
+    empty("No design to plot");
+    return;
+  }
+  const range = sigmaRange(sets.map((set) => set.evaluation), target);
+  if (!range) {
+    empty("No finite values to plot");
+    return;
+  }
+  const { xMin, xMax, yMin, yMax } = range;
   const frame = [b.width, b.height, xMin, xMax, yMin, yMax, target].join("|");
   const view: SigmaView = last && last.frame === frame && last.plot ? last : sigmaFrame(container, b, label, frame, xMin, xMax, yMin, yMax, target);
   sigmaViews.set(container, view);

@@ -271,7 +271,9 @@ function readPair(value: unknown, slots: Slot[], problems: Problem[]): PairSetti
 
 /** The engine's pair document for the settings and the two designs. */
 export function pairDocument(p: PairSettings, a: Design, b: Design): PairDocument {
-  const doc: PairDocument = { schema_version: 1, name: `${a.name} / ${b.name}`, a, b, comparison: p.comparison, campaign: p.campaign };
+  // The engine allows names of up to 200 characters; two long design names must not make the pair invalid.
+  const name = [...`${a.name} / ${b.name}`].slice(0, 200).join("");
+  const doc: PairDocument = { schema_version: 1, name, a, b, comparison: p.comparison, campaign: p.campaign };
   if (p.link) doc.link = p.link;
   return doc;
 }
