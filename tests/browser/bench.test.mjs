@@ -8,7 +8,8 @@ import { join } from "node:path";
 import { PAGE, artifactsDir, launch, median, openPage, readTable, updateCount, waitForUpdates } from "./helpers.mjs";
 
 const EDITS = 30;
-const SIZE_TARGET = 600 * 1024;
+// 600 kB, decimal kilobytes, as the size is reported.
+const SIZE_TARGET = 600_000;
 
 test("benchmark: median edit-to-redraw over 30 edits with four designs; page size", async (t) => {
   const size = (await stat(PAGE)).size;
@@ -40,7 +41,7 @@ test("benchmark: median edit-to-redraw over 30 edits with four designs; page siz
       median_engine_ms: Number(median(engine).toFixed(1)),
       median_draw_ms: Number(median(draw).toFixed(1)),
       html_bytes: size,
-      html_kb: Number((size / 1024).toFixed(1)),
+      html_kb: Number((size / 1000).toFixed(1)),
     };
     const line =
       `benchmark: edit-to-redraw median ${report.median_edit_to_redraw_ms} ms (min ${report.min_ms}, max ${report.max_ms}; ` +
@@ -48,7 +49,7 @@ test("benchmark: median edit-to-redraw over 30 edits with four designs; page siz
     console.log(line);
     t.diagnostic(line);
     await writeFile(join(await artifactsDir(), "bench.json"), JSON.stringify(report, null, 2) + "\n");
-    assert.ok(size <= SIZE_TARGET, `the page is ${report.html_kb} kB, above the ${SIZE_TARGET / 1024} kB target`);
+    assert.ok(size <= SIZE_TARGET, `the page is ${report.html_kb} kB, above the ${SIZE_TARGET / 1000} kB target`);
   } finally {
     await b.close();
   }
