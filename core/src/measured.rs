@@ -333,7 +333,7 @@ pub fn parse_csv(text: &str) -> Result<MeasuredData, InputError> {
                         return Err(InputError::single(
                             format!("line {line}"),
                             format!("gap of {missing} samples ({gap_so_far} missing so far)"),
-                            format!("gaps may add at most {MAX_GAP_FACTOR} missing samples per data row ({most} for this file of {} rows), or 1000 for short files; check tau0_s and the time stamps", vals.len()),
+                            format!("gaps may add at most {most} missing samples to this file of {} rows ({MAX_GAP_FACTOR} per data row, at least 1000); check tau0_s and the time stamps", vals.len()),
                         ));
                     }
                     gaps.push(Gap { line: line as u64, start_index: values.len() as u64, missing });
