@@ -97,8 +97,8 @@ pub fn run_design(bytes: &[u8]) -> Outcome {
     };
     // Validation is what the editor shows field by field; evaluation refuses more (a
     // sequence without a usable line, g(t) beyond its piece cap), with its own errors.
-    let problems = clockwright_wasm::validate_value(value.clone());
-    let r = clockwright_wasm::evaluate_value(value.clone(), Value::Null);
+    let problems = crate::page::validate_value(value.clone());
+    let r = crate::page::evaluate_value(value.clone(), Value::Null);
     if r.is_ok() && !problems.is_empty() {
         return Outcome::Accepted(vec![format!("evaluated although validation lists {} problems", problems.len())]);
     }
@@ -120,7 +120,7 @@ pub fn run_design(bytes: &[u8]) -> Outcome {
 /// A pair document: parse, validate, evaluate the ratio (the page's immediate call).
 pub fn run_pair(bytes: &[u8]) -> Outcome {
     match json_of(bytes) {
-        Ok(v) => walk(clockwright_wasm::pair::evaluate_pair_value(v, Value::Null)),
+        Ok(v) => walk(crate::page::evaluate_pair_value(v, Value::Null)),
         Err(e) => Outcome::Refused(e),
     }
 }
@@ -154,11 +154,11 @@ pub fn run_study(bytes: &[u8]) -> Outcome {
                 *r = Value::from(2);
             }
             let d = designs.into_iter().next().unwrap_or(Value::Null);
-            walk(clockwright_wasm::study::optimum_value(d, request))
+            walk(crate::page::optimum_value(d, request))
         }
         "bands" => {
             let d = designs.into_iter().next().unwrap_or(Value::Null);
-            match clockwright_wasm::study::band_run_value(d, request) {
+            match crate::page::band_run_value(d, request) {
                 Err(e) => Outcome::Refused(e),
                 Ok(mut run) => {
                     let p = run.advance(STEP);
@@ -173,7 +173,7 @@ pub fn run_study(bytes: &[u8]) -> Outcome {
                 }
             }
         }
-        _ => match clockwright_wasm::study::grid_run_value(Value::Array(designs), request) {
+        _ => match crate::page::grid_run_value(Value::Array(designs), request) {
             Err(e) => Outcome::Refused(e),
             Ok(mut run) => {
                 let p = run.advance(STEP);
@@ -201,7 +201,7 @@ fn make_csv(rng: &mut Rng, seeds: &Seeds) -> Vec<u8> {
 /// design in place of its laser noise and is evaluated (what the page does next).
 pub fn run_spectrum_csv(bytes: &[u8]) -> Outcome {
     let text = String::from_utf8_lossy(bytes);
-    let table = match clockwright_wasm::parse_spectrum_csv(&text) {
+    let table = match crate::page::parse_spectrum_csv(&text) {
         Ok(t) => t,
         Err(e) => return Outcome::Refused(e),
     };
@@ -219,7 +219,7 @@ pub fn run_spectrum_csv(bytes: &[u8]) -> Outcome {
 /// A measured-data CSV as the page's worker imports it (default estimator options).
 pub fn run_measured_csv(bytes: &[u8]) -> Outcome {
     let text = String::from_utf8_lossy(bytes);
-    walk(clockwright_wasm::simulate::import_measured_value(&text, Value::Null))
+    walk(crate::page::import_measured_value(&text, Value::Null))
 }
 
 // ----- Extreme but valid designs ----------------------------------------------------------
@@ -387,5 +387,5 @@ pub fn run_extreme(bytes: &[u8]) -> Outcome {
     };
     let d = v.get("design").cloned().unwrap_or(Value::Null);
     let o = v.get("options").cloned().unwrap_or(Value::Null);
-    walk(clockwright_wasm::evaluate_value(d, o))
+    walk(crate::page::evaluate_value(d, o))
 }

@@ -8,6 +8,7 @@
 pub mod entries;
 pub use clockwright_core::finite;
 pub mod mutate;
+pub mod page;
 
 use entries::{Entry, Outcome, Seeds};
 use mutate::Rng;
@@ -167,12 +168,30 @@ pub struct Stats {
 
 /// Runs `inputs` inputs (or until `budget` has passed, whichever comes first) through one
 /// entry: the seeds themselves first, then mutations from the seeded generator.
-pub fn pass(entry: &Entry, seeds: &Seeds, seed: u64, inputs: u64, budget: Option<Duration>) -> Stats {
+/// With `progress`, a line of figures is printed every minute.
+pub fn pass(entry: &Entry, seeds: &Seeds, seed: u64, inputs: u64, budget: Option<Duration>, progress: bool) -> Stats {
     let mut rng = Rng::new(seed ^ fnv(entry.name.as_bytes()));
     let mut s = Stats::default();
     let start = Instant::now();
+    let mut report = start;
     let mut k = 0u64;
     while k < inputs {
+        if progress && report.elapsed() >= Duration::from_secs(60) {
+            report = Instant::now();
+            println!(
+                "  {} so far: {} inputs ({} accepted, {} refused, {} failed), {:.0} inputs per CPU second, slowest {:.2} ms, {:.0} s",
+                entry.name,
+                s.inputs,
+                s.accepted,
+                s.refused,
+                s.failures,
+                s.inputs as f64 / s.total.as_secs_f64().max(1e-9),
+                s.slowest.as_secs_f64() * 1e3,
+                start.elapsed().as_secs_f64()
+            );
+            use std::io::Write;
+            let _ = std::io::stdout().flush();
+        }
         if let Some(b) = budget {
             if start.elapsed() > b {
                 break;

@@ -74,7 +74,7 @@ fn run(args: &[String]) -> Result<ExitCode, String> {
     let mut failed = 0;
     for e in chosen {
         let seeds = load_seeds(&corpus, e).map_err(|x| format!("reading the corpus of {}: {x}", e.name))?;
-        let s = pass(e, &seeds, seed, inputs, seconds.map(Duration::from_secs_f64));
+        let s = pass(e, &seeds, seed, inputs, seconds.map(Duration::from_secs_f64), seconds.is_none());
         let rate = s.inputs as f64 / s.total.as_secs_f64().max(1e-9);
         let slow_file = if s.slowest_input.is_empty() { String::new() } else { format!("{} bytes", s.slowest_input.len()) };
         println!(

@@ -21,7 +21,7 @@ fn workspace(bytes: &[u8]) -> Result<Vec<clockwright_core::Evaluation>, InputErr
     let designs = v.get("designs").and_then(Value::as_array).ok_or_else(|| InputError::single("designs", "missing", "must be a list of {colour, design}"))?;
     designs
         .iter()
-        .map(|d| clockwright_wasm::evaluate_value(d.get("design").cloned().unwrap_or(Value::Null), Value::Null))
+        .map(|d| clockwright_fuzz::page::evaluate_value(d.get("design").cloned().unwrap_or(Value::Null), Value::Null))
         .collect()
 }
 
@@ -98,8 +98,8 @@ fn ten_megabyte_lines_are_refused_by_line() {
         text.push('\n');
         let t0 = std::time::Instant::now();
         let e = match kind {
-            "spectrum_csv" => clockwright_wasm::parse_spectrum_csv(&text).map(|_| ()).unwrap_err(),
-            _ => clockwright_wasm::simulate::import_measured_value(&text, Value::Null).map(|_| ()).unwrap_err(),
+            "spectrum_csv" => clockwright_fuzz::page::parse_spectrum_csv(&text).map(|_| ()).unwrap_err(),
+            _ => clockwright_fuzz::page::import_measured_value(&text, Value::Null).map(|_| ()).unwrap_err(),
         };
         assert!(t0.elapsed() < TIME_LIMIT, "{kind}: {:?}", t0.elapsed());
         let line = head.lines().count() + 1;
@@ -114,7 +114,7 @@ fn a_design_document_with_thousands_of_problems_lists_a_hundred_and_counts_the_r
     let mut d: Value = serde_json::from_str(&std::fs::read_to_string(PathBuf::from(env!("CARGO_MANIFEST_DIR")).join("../../core/designs/lattice.json")).expect("demo")).expect("JSON");
     let rows: Vec<Value> = (0..200).map(|k| serde_json::json!([-(k as f64), f64::MAX])).collect();
     d["laser"]["table"] = serde_json::json!({ "unit": "s_y", "points": rows });
-    let e = clockwright_wasm::evaluate_value(d, Value::Null).unwrap_err();
+    let e = clockwright_fuzz::page::evaluate_value(d, Value::Null).unwrap_err();
     assert_eq!(e.problems.len(), clockwright_core::error::MAX_PROBLEMS + 1);
     let last = e.problems.last().expect("a count");
     assert_eq!(last.path, "(more)");
