@@ -20,9 +20,9 @@ use serde::Serialize;
 use serde_json::Value;
 use wasm_bindgen::prelude::*;
 
-pub mod simulate;
-pub mod pair;
-pub mod study;
+mod simulate;
+mod pair;
+mod study;
 
 // ---------------------------------------------------------------------------------------
 // Conversion layer (native, tested).
