@@ -26,13 +26,32 @@ pub const CHECKPOINTS_S: [f64; 3] = [1.0, 1000.0, DAY_S];
 
 /// Caps on evaluation options.
 pub mod caps {
-    pub const MAX_TAU_POINTS: usize = 400;
+    /// Averaging times of one curve (15 per decade over ten decades; each costs one set of
+    /// transfer-function integrals when the spectrum needs them, so the cap bounds the time).
+    pub const MAX_TAU_POINTS: usize = 150;
     pub const MAX_PLOT_POINTS: usize = 4000;
     pub const MAX_TAU_S: f64 = 1e9;
+    /// Line-shape work of one evaluation: plot points times the probe's pulse and free
+    /// segments (each point propagates through every segment).
+    pub const MAX_LINE_PROPAGATIONS: usize = 20_000;
+    /// Work of the Allan integrals over a spectrum table: its rows times the averaging
+    /// times (every row is a panel edge at every tau): the default 61 times 200 rows.
+    pub const MAX_TABLE_TAU_WORK: usize = 61 * crate::noise::MAX_TABLE_ROWS;
 }
 
-fn check_options(o: &EvalOptions, cycle: f64) -> Result<(), InputError> {
+fn check_options(o: &EvalOptions, cycle: f64, probe_segments: usize, table_rows: usize) -> Result<(), InputError> {
     let mut c = Checker::new();
+    if table_rows > 0 && o.tau_points.saturating_mul(table_rows) > caps::MAX_TABLE_TAU_WORK {
+        c.push(
+            "options.tau_points",
+            o.tau_points.to_string(),
+            format!(
+                "with a spectrum table of {table_rows} rows at most {} averaging times (rows times averaging times at most {})",
+                caps::MAX_TABLE_TAU_WORK / table_rows,
+                caps::MAX_TABLE_TAU_WORK
+            ),
+        );
+    }
     c.above("options.target_instability", o.target_instability, 0.0, 1e-6, "");
     if o.tau_points < 2 || o.tau_points > caps::MAX_TAU_POINTS {
         c.push("options.tau_points", o.tau_points.to_string(), format!("must be from 2 to {}", caps::MAX_TAU_POINTS));
@@ -42,6 +61,16 @@ fn check_options(o: &EvalOptions, cycle: f64) -> Result<(), InputError> {
     }
     if o.plot_points < 16 || o.plot_points > caps::MAX_PLOT_POINTS {
         c.push("options.plot_points", o.plot_points.to_string(), format!("must be from 16 to {}", caps::MAX_PLOT_POINTS));
+    } else if o.plot_points.saturating_mul(probe_segments) > caps::MAX_LINE_PROPAGATIONS {
+        c.push(
+            "options.plot_points",
+            o.plot_points.to_string(),
+            format!(
+                "with {probe_segments} pulse and free segments at most {} plot points (points times segments at most {})",
+                (caps::MAX_LINE_PROPAGATIONS / probe_segments.max(1)).max(16),
+                caps::MAX_LINE_PROPAGATIONS
+            ),
+        );
     }
     c.finish()
 }
@@ -372,7 +401,9 @@ pub fn evaluate(d: &Design, opt: &EvalOptions) -> Result<Evaluation, InputError>
 pub fn evaluate_with_cache(d: &Design, opt: &EvalOptions, cache: &mut StageCache) -> Result<Evaluation, InputError> {
     d.validate()?;
     let cycle = d.cycle_time_s();
-    check_options(opt, cycle)?;
+    let probe_segments = d.sequence.segments.iter().filter(|s| !matches!(s, crate::design::Segment::Dead { .. })).count();
+    let table_rows = d.laser.table.as_ref().map(|t| t.points.len()).unwrap_or(0);
+    check_options(opt, cycle, probe_segments, table_rows)?;
     let nu0 = d.transition.frequency_hz;
     let Built { model, probe, ro, op, proj, gf, dick } = build_with(d, cache)?;
     let sigma_dick_1s = libm::sqrt(dick.variance_coefficient);
@@ -476,7 +507,7 @@ pub fn evaluate_with_cache(d: &Design, opt: &EvalOptions, cache: &mut StageCache
     }
     let measured = excitation.iter().map(|&p| ro.measured(p)).collect();
 
-    Ok(Evaluation {
+    let out = Evaluation {
         cycle_time_s: cycle,
         probe_time_s: probe_s,
         dead_time_s: dead,
@@ -510,7 +541,9 @@ pub fn evaluate_with_cache(d: &Design, opt: &EvalOptions, cache: &mut StageCache
         sensitivity: SensitivitySamples { t_s, g },
         line_shape: LineShape { detuning_hz, excitation, measured },
         checkpoints,
-    })
+    };
+    crate::finite::require_finite(&out, "result")?;
+    Ok(out)
 }
 
 fn time_to_target(model: &Model, curve: &Curve, target: f64, sigma_1s_eq: f64) -> TargetResult {
@@ -520,7 +553,7 @@ fn time_to_target(model: &Model, curve: &Curve, target: f64, sigma_1s_eq: f64) -
         Some(i) if i + 1 == curve.tau_s.len() => {
             // Beyond the grid the locked laser averages as white frequency noise.
             let t = (sigma_1s_eq / target) * (sigma_1s_eq / target);
-            if t > curve.tau_s[i] && model.total(t) <= target * (1.0 + 1e-3) {
+            if t.is_finite() && t > curve.tau_s[i] && model.total(t) <= target * (1.0 + 1e-3) {
                 TargetResult { target, time_s: Some(t), note: "extrapolated as white frequency noise beyond the last averaging time".into() }
             } else {
                 TargetResult { target, time_s: None, note: "not reached within the modelled averaging times".into() }
@@ -533,7 +566,7 @@ fn time_to_target(model: &Model, curve: &Curve, target: f64, sigma_1s_eq: f64) -
             let (mut fa, mut fb) = (libm::log(curve.total[i] / target), libm::log(curve.total[i + 1] / target));
             for _ in 0..30 {
                 let c = if fa != fb { (a * fb - b * fa) / (fb - fa) } else { (a + b) / 2.0 };
-                let c = c.clamp(a.min(b), a.max(b));
+                let c = c.max(a.min(b)).min(a.max(b));
                 let fc = f(c);
                 if fc.abs() < 1e-12 {
                     b = c;

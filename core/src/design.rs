@@ -35,8 +35,15 @@ pub mod caps {
     pub const MAX_CUTOFF_TIMES_CYCLE: f64 = 1e9;
     /// Shortest cycle, s.
     pub const MIN_CYCLE_S: f64 = 1e-6;
-    /// Largest design name, characters.
+    /// Shortest excited-state lifetime, s.
+    pub const MIN_LIFETIME_S: f64 = 1e-6;
+    /// Largest design name, characters (labels likewise).
     pub const MAX_NAME_CHARS: usize = 200;
+    /// Most values in one design document (a full design with 64 segments, 16 noise terms
+    /// and a 200-row table holds about 1 100).
+    pub const MAX_DOCUMENT_VALUES: usize = 5_000;
+    /// Most bytes of text (names, labels, keys) in one design document.
+    pub const MAX_DOCUMENT_TEXT: usize = 20_000;
     /// Largest magnitude of a K_alpha override (the most sensitive proposed transitions
     /// reach about 1e4; 1e6 leaves room without admitting absurd values).
     pub const MAX_K_ALPHA: f64 = 1e6;
@@ -244,6 +251,7 @@ impl Design {
 
     /// Parses a design from a JSON value, migrating older schema versions.
     pub fn from_value(value: serde_json::Value) -> Result<Design, InputError> {
+        crate::error::check_document_size(&value, "(document)", caps::MAX_DOCUMENT_VALUES, caps::MAX_DOCUMENT_TEXT)?;
         let version = value.get("schema_version").and_then(|v| v.as_u64());
         match version {
             Some(v) if v == SCHEMA_VERSION as u64 => {}
@@ -263,9 +271,9 @@ impl Design {
             }
         }
         serde_path_to_error::deserialize(value).map_err(|e| {
-            let path = e.path().to_string();
-            let path = if path == "." { "(document)".to_string() } else { path };
-            InputError::single(path, "", format!("does not follow the design schema: {}", e.inner()))
+            let path = crate::error::clip(&e.path().to_string(), crate::error::MAX_QUOTED_CHARS);
+            let path = if path == "." || path.trim().is_empty() { "(document)".to_string() } else { path };
+            InputError::single(path, "", format!("does not follow the design schema: {}", crate::error::clip(&e.inner().to_string(), crate::error::MAX_QUOTED_CHARS)))
         })
     }
 
@@ -283,9 +291,17 @@ impl Design {
         if self.name.chars().count() > caps::MAX_NAME_CHARS {
             c.push("name", format!("{} characters", self.name.chars().count()), format!("at most {} characters", caps::MAX_NAME_CHARS));
         }
+        for (path, text) in [("transition.label", &self.transition.label), ("laser.label", &self.laser.label)] {
+            let n = text.chars().count();
+            if n > caps::MAX_NAME_CHARS {
+                c.push(path, format!("{n} characters"), format!("at most {} characters", caps::MAX_NAME_CHARS));
+            }
+        }
         c.range("transition.frequency_hz", self.transition.frequency_hz, caps::MIN_FREQUENCY_HZ, caps::MAX_FREQUENCY_HZ, "Hz");
         if let Some(t) = self.transition.lifetime_s {
-            c.above("transition.lifetime_s", t, 0.0, 1e12, "s");
+            // A clock transition lives far longer than the shortest cycle (1 µs); shorter
+            // lifetimes make the two-level propagators stiff beyond use (common practice).
+            c.range("transition.lifetime_s", t, caps::MIN_LIFETIME_S, 1e12, "s");
         }
         if let Some(id) = &self.transition.species {
             if crate::species::find(id).is_none() {

@@ -21,6 +21,10 @@ use std::f64::consts::PI;
 
 /// Most harmonics summed one by one.
 pub const MAX_HARMONICS: usize = 1 << 16;
+/// Most harmonic-times-piece terms of one Dick sum (each harmonic costs one term per piece
+/// of g(t)): a g(t) of many pieces stops earlier and takes the analytic tail with its
+/// stated, larger bound, so one sum stays within a few tens of milliseconds.
+pub const MAX_PIECE_HARMONICS: usize = 1 << 22;
 /// Relative truncation error at which the sum stops.
 pub const TOLERANCE: f64 = 1e-6;
 /// Relative rounding allowance of the Parseval integrals and the partial sums.
@@ -307,7 +311,9 @@ pub fn fourier_coefficients(gf: &SensitivityFunction, m: usize) -> Vec<Complex64
 fn tail(spec: &Spectrum, tc: f64, m_done: usize, (t0, e0): (f64, f64), (t2, e2): (f64, f64)) -> (f64, f64, f64) {
     let (t0_lo, t0_hi) = ((t0 - e0).max(0.0), t0 + e0);
     let (t2_lo, t2_hi) = ((t2 - e2).max(0.0), (t2 + e2).min(t0_hi));
-    let (t0, t2) = (t0.max(0.0), t2.clamp(0.0, t2_hi));
+    // max/min rather than clamp: with extreme inputs the sums can be NaN, which clamp
+    // refuses with a panic; a NaN here is caught by the finite check of the result.
+    let (t0, t2) = (t0.max(0.0), t2.max(0.0).min(t2_hi));
     if t0_hi <= 0.0 {
         return (0.0, 0.0, 0.0);
     }
@@ -378,7 +384,7 @@ fn tail(spec: &Spectrum, tc: f64, m_done: usize, (t0, e0): (f64, f64), (t2, e2):
     } else {
         (lo + hi) / 2.0
     };
-    (lo, hi, est.clamp(lo, hi.max(lo)))
+    (lo, hi, est.max(lo).min(hi.max(lo)))
 }
 
 /// integral_a^b f(x) dx on log-spaced panels with 8-point Gauss-Legendre each.
@@ -413,7 +419,8 @@ pub fn dick_sum(gf: &SensitivityFunction, spec: &Spectrum) -> DickSum {
     let mut checkpoint = 32usize;
     let mut bound = f64::INFINITY;
     let mut total = 0.0;
-    while m < MAX_HARMONICS {
+    let max_m = MAX_HARMONICS.min(MAX_PIECE_HARMONICS / gf.pieces.len().max(1)).max(32);
+    while m < max_m {
         let c = harm.next();
         m += 1;
         let c2 = c.norm_sqr();
@@ -423,7 +430,7 @@ pub fn dick_sum(gf: &SensitivityFunction, spec: &Spectrum) -> DickSum {
         p0 += c2;
         p2 += c2 / (m as f64 * m as f64);
         d += c2 * spec.s_y(m as f64 / tc);
-        if m == checkpoint || m == MAX_HARMONICS {
+        if m == checkpoint || m == max_m {
             let e0 = pv.e0 + ROUNDING * p0;
             let e2 = pv.e2 + ROUNDING * p2;
             let (lo, hi, est) = tail(spec, tc, m, (pv.s0 - p0, e0), (pv.s2 - p2, e2));

@@ -46,10 +46,29 @@ impl fmt::Display for InputError {
 
 impl std::error::Error for InputError {}
 
-/// Collects problems while a document is checked, so all of them are reported together.
+/// Most problems one check lists; the rest are counted in a last problem, so a document
+/// with thousands of bad rows still gets a short, readable answer.
+pub const MAX_PROBLEMS: usize = 100;
+
+/// Longest text of one message part taken from the input (a schema error quoting a
+/// field name, a path through the document), characters.
+pub const MAX_QUOTED_CHARS: usize = 200;
+
+/// `s` cut to `n` characters, with an ellipsis when something was cut.
+pub fn clip(s: &str, n: usize) -> String {
+    let mut out: String = s.chars().take(n).collect();
+    if s.chars().nth(n).is_some() {
+        out.push('…');
+    }
+    out
+}
+
+/// Collects problems while a document is checked, so all of them are reported together
+/// (the first [`MAX_PROBLEMS`], and how many more).
 #[derive(Debug, Default)]
 pub struct Checker {
     problems: Vec<Problem>,
+    more: usize,
 }
 
 /// Formats a number the way the messages show it: plain, or NaN/inf spelled out.
@@ -71,7 +90,11 @@ impl Checker {
     }
 
     pub fn push(&mut self, path: impl Into<String>, value: impl Into<String>, allowed: impl Into<String>) {
-        self.problems.push(Problem { path: path.into(), value: value.into(), allowed: allowed.into() });
+        if self.problems.len() < MAX_PROBLEMS {
+            self.problems.push(Problem { path: path.into(), value: value.into(), allowed: allowed.into() });
+        } else {
+            self.more += 1;
+        }
     }
 
     /// A finite number within `[lo, hi]` (inclusive); `unit` is appended to the message.
@@ -98,7 +121,39 @@ impl Checker {
         self.problems.is_empty()
     }
 
-    pub fn finish(self) -> Result<(), InputError> {
+    pub fn finish(mut self) -> Result<(), InputError> {
+        if self.more > 0 {
+            self.problems.push(Problem { path: "(more)".into(), value: format!("{} more problems", self.more), allowed: format!("only the first {MAX_PROBLEMS} are listed") });
+        }
         if self.problems.is_empty() { Ok(()) } else { Err(InputError { problems: self.problems }) }
     }
+}
+
+/// Checks the size of a JSON document before it is read into its schema: at most
+/// `max_values` values (objects, lists, numbers, texts...) and `max_text` characters of text
+/// in all, so an oversized document is refused at once, whatever its shape.
+pub fn check_document_size(value: &serde_json::Value, path: &str, max_values: usize, max_text: usize) -> Result<(), InputError> {
+    let mut stack = vec![value];
+    let (mut values, mut text) = (0usize, 0usize);
+    while let Some(v) = stack.pop() {
+        values += 1;
+        match v {
+            serde_json::Value::Array(a) => stack.extend(a.iter()),
+            serde_json::Value::Object(m) => {
+                for (k, x) in m {
+                    text += k.len();
+                    stack.push(x);
+                }
+            }
+            serde_json::Value::String(s) => text += s.len(),
+            _ => {}
+        }
+        if values > max_values {
+            return Err(InputError::single(path, format!("more than {max_values} values"), format!("a document of this kind holds at most {max_values} values (numbers, texts, lists and groups)")));
+        }
+        if text > max_text {
+            return Err(InputError::single(path, format!("more than {max_text} bytes of text"), format!("a document of this kind holds at most {max_text} bytes of names, labels and keys")));
+        }
+    }
+    Ok(())
 }

@@ -13,6 +13,7 @@ pub mod design;
 pub mod dick;
 pub mod error;
 pub mod estimate;
+pub mod finite;
 pub mod measured;
 pub mod noise;
 pub mod projection;

@@ -22,6 +22,7 @@
 //! touch them). An empty value cell or `nan` is a gap sample too.
 
 use crate::error::{show, Checker, InputError, Problem};
+use crate::noise::MAX_CSV_LINE_BYTES;
 use crate::estimate::{estimate, Estimate, Estimator, Options, Series, MAX_POINTS};
 use serde::{Deserialize, Serialize};
 
@@ -31,6 +32,10 @@ pub const GRID_TOLERANCE: f64 = 0.1;
 pub const MAX_REPORTED_PROBLEMS: usize = 20;
 /// Most gaps listed one by one in the result (all are counted).
 pub const MAX_LISTED_GAPS: usize = 1000;
+/// Most missing samples per data row that gaps may add: a series that is mostly gaps has
+/// almost no Allan terms free of them, and the cap keeps the work proportional to the file
+/// (a few bytes of time stamps cannot ask for 1e8 samples).
+pub const MAX_GAP_FACTOR: u64 = 10;
 /// Largest text accepted, bytes (about 100 million rows of short numbers would exceed it;
 /// the sample cap [`MAX_POINTS`] applies as well).
 pub const MAX_TEXT_BYTES: usize = 2_000_000_000;
@@ -164,6 +169,8 @@ const HEADER_HELP: &str = "the header names the columns: optionally t_s or t_mjd
 /// assert_eq!(e.problems[0].path, "line 3");
 /// ```
 pub fn parse_csv(text: &str) -> Result<MeasuredData, InputError> {
+    // A byte-order mark (spreadsheet exports write one) is not part of the first line.
+    let text = text.strip_prefix('\u{feff}').unwrap_or(text);
     if text.len() > MAX_TEXT_BYTES {
         return Err(InputError::single("(file)", format!("{} bytes", text.len()), format!("at most {MAX_TEXT_BYTES} bytes")));
     }
@@ -175,6 +182,9 @@ pub fn parse_csv(text: &str) -> Result<MeasuredData, InputError> {
     let mut vals: Vec<(f64, usize)> = Vec::new();
     for (i, raw) in text.lines().enumerate() {
         let line_no = i + 1;
+        if raw.len() > MAX_CSV_LINE_BYTES {
+            return Err(InputError::single(format!("line {line_no}"), format!("{} bytes: {}", raw.len(), clip(raw)), format!("a line holds at most {MAX_CSV_LINE_BYTES} bytes")));
+        }
         let line = raw.trim();
         if line.is_empty() {
             continue;
@@ -290,6 +300,7 @@ pub fn parse_csv(text: &str) -> Result<MeasuredData, InputError> {
     let mut gaps: Vec<Gap> = Vec::new();
     let mut probs = Problems { list: Vec::new(), more: 0 };
     let tau0_s;
+    let mut time_gap_samples: u64 = 0;
     if tcol.is_some() {
         tau0_s = match tau0 {
             Some(t) => t,
@@ -312,8 +323,18 @@ pub fn parse_csv(text: &str) -> Result<MeasuredData, InputError> {
                 }
                 let missing = whole as u64 - 1;
                 if missing > 0 {
-                    if values.len() as u64 + missing > MAX_POINTS as u64 {
+                    if (values.len() as u64).saturating_add(missing) > MAX_POINTS as u64 {
                         return Err(InputError::single(format!("line {line}"), format!("gap of {missing} samples"), format!("the series with its gaps may hold at most {MAX_POINTS} samples")));
+                    }
+                    time_gap_samples += missing;
+                    let gap_so_far = time_gap_samples;
+                    let most = MAX_GAP_FACTOR.saturating_mul(vals.len() as u64).max(1000);
+                    if gap_so_far > most {
+                        return Err(InputError::single(
+                            format!("line {line}"),
+                            format!("gap of {missing} samples ({gap_so_far} missing so far)"),
+                            format!("gaps may add at most {most} missing samples to this file of {} rows ({MAX_GAP_FACTOR} per data row, at least 1000); check tau0_s and the time stamps", vals.len()),
+                        ));
                     }
                     gaps.push(Gap { line: line as u64, start_index: values.len() as u64, missing });
                     values.resize(values.len() + missing as usize, f64::NAN);
@@ -391,7 +412,7 @@ pub fn analyse(data: &MeasuredData, options: &Options) -> Result<MeasuredResult,
     if !adev.skipped_m.is_empty() {
         notes.push(format!("{} averaging factors had no term free of gaps and are left out.", adev.skipped_m.len()));
     }
-    Ok(MeasuredResult {
+    let out = MeasuredResult {
         quantity: data.quantity,
         unit: data.unit.clone(),
         tau0_s: data.tau0_s,
@@ -402,5 +423,7 @@ pub fn analyse(data: &MeasuredData, options: &Options) -> Result<MeasuredResult,
         gaps: data.gaps.iter().take(MAX_LISTED_GAPS).cloned().collect(),
         adev,
         notes,
-    })
+    };
+    crate::finite::require_finite(&out, "result")?;
+    Ok(out)
 }

@@ -293,10 +293,12 @@ impl PairDocument {
         if !value.is_object() {
             return Err(InputError::single("pair", show_json(&value), "must be an object with schema_version, name, a, b, comparison, campaign and optionally link"));
         }
+        // Two designs and the pair's own fields.
+        crate::error::check_document_size(&value, "pair", 2 * crate::design::caps::MAX_DOCUMENT_VALUES + 1_000, 2 * crate::design::caps::MAX_DOCUMENT_TEXT + 5_000)?;
         serde_path_to_error::deserialize(value).map_err(|e| {
-            let path = e.path().to_string();
-            let path = if path == "." { "pair".to_string() } else { format!("pair.{path}") };
-            InputError::single(path, "", format!("does not follow the pair schema: {}", e.inner()))
+            let path = crate::error::clip(&e.path().to_string(), crate::error::MAX_QUOTED_CHARS);
+            let path = if path == "." || path.trim().is_empty() { "pair".to_string() } else { format!("pair.{path}") };
+            InputError::single(path, "", format!("does not follow the pair schema: {}", crate::error::clip(&e.inner().to_string(), crate::error::MAX_QUOTED_CHARS)))
         })
     }
 
@@ -662,6 +664,10 @@ fn differential_dick(ga: &SensitivityFunction, gb: &SensitivityFunction, spec: &
     let da = dick_sum(ga, spec);
     let db = dick_sum(gb, spec);
     let (a0, b0) = (ga.g0(), gb.g0());
+    // As in the single Dick sum, the harmonics are capped by the work they cost: one term
+    // per piece of g(t) per harmonic ([`crate::dick::MAX_PIECE_HARMONICS`]).
+    let pieces = ga.pieces.len().max(gb.pieces.len()).max(1);
+    let max_m = caps::MAX_PAIR_HARMONICS.min(crate::dick::MAX_PIECE_HARMONICS / pieces).max(256);
     let mut m = 256usize;
     loop {
         let ca = fourier_coefficients(ga, m);
@@ -679,7 +685,7 @@ fn differential_dick(ga: &SensitivityFunction, gb: &SensitivityFunction, spec: &
         let bound = (libm::sqrt(ra) + libm::sqrt(rb)) * (libm::sqrt(ra) + libm::sqrt(rb));
         let scale = white_other + pd;
         let rel = if scale > 0.0 { bound / scale } else { 0.0 };
-        if rel <= DIFFERENTIAL_TOLERANCE || m >= caps::MAX_PAIR_HARMONICS {
+        if rel <= DIFFERENTIAL_TOLERANCE || m >= max_m {
             return Differential { variance: pd, alone_a: da.variance_coefficient, alone_b: db.variance_coefficient, harmonics: m, bound_relative: rel };
         }
         m *= 2;
@@ -758,7 +764,7 @@ pub fn evaluate_pair(doc: &PairDocument, opt: &PairOptions) -> Result<PairEvalua
         _ => {}
     }
     let checkpoints = ratio_checkpoints(&ratio)?;
-    Ok(PairEvaluation {
+    let out = PairEvaluation {
         comparison: doc.comparison,
         cycle_time_s: ratio.cycle_s,
         tau_s: taus,
@@ -773,5 +779,7 @@ pub fn evaluate_pair(doc: &PairDocument, opt: &PairOptions) -> Result<PairEvalua
         assumptions,
         notes,
         checkpoints,
-    })
+    };
+    crate::finite::require_finite(&out, "result")?;
+    Ok(out)
 }

@@ -219,7 +219,7 @@ pub fn operating_point(probe: &Probe, ro: &Readout, rule: OperatingPointRule) ->
     let best_hz = if flat > 2 {
         let lo = (0..=SEARCH_POINTS).find(|&k| merits[k] >= best_m * (1.0 - 1e-6)).map(at).unwrap_or(flank_lo);
         let hi = (0..=SEARCH_POINTS).rev().find(|&k| merits[k] >= best_m * (1.0 - 1e-6)).map(at).unwrap_or(flank_hi);
-        half_max_hz.clamp(lo, hi)
+        half_max_hz.max(lo).min(hi)
     } else if best_k == 0 || best_k == SEARCH_POINTS {
         at(best_k)
     } else {

@@ -480,7 +480,9 @@ pub fn reach(doc: &PairDocument, opt: &ReachOptions) -> Result<Reach, InputError
     if k.systematic_per_session > 0.0 {
         assumptions.push("The systematic uncertainty per session is independent from session to session.".into());
     }
-    Ok(Reach { campaign_span_s: span, live_time_s: live, drift, dark_matter, levelling, assumptions })
+    let out = Reach { campaign_span_s: span, live_time_s: live, drift, dark_matter, levelling, assumptions };
+    crate::finite::require_finite(&out, "result")?;
+    Ok(out)
 }
 
 /// Averaging time at which c^2 sigma_R(tau)/g falls to `target` and stays below (on a grid to

@@ -147,7 +147,7 @@ fn driven_with_decay(axis: [f64; 3], gamma: f64, t: f64) -> Option<Affine> {
     if !converged {
         return None;
     }
-    let r = r.clamp(-h, 0.0);
+    let r = r.max(-h).min(0.0);
     let b = h + r;
     let c = n2 + r * b;
     let w2 = c - b * b / 4.0;

@@ -210,9 +210,9 @@ impl SplitMix64 {
 /// inside the request, prefixed by `what`.
 pub fn from_value<T: serde::de::DeserializeOwned>(value: serde_json::Value, what: &str) -> Result<T, InputError> {
     serde_path_to_error::deserialize(value).map_err(|e| {
-        let inner = e.path().to_string();
-        let path = if inner == "." { if what.is_empty() { "(request)".to_string() } else { what.to_string() } } else if what.is_empty() { inner } else { format!("{what}.{inner}") };
-        InputError::single(path, "", format!("does not follow the study schema: {}", e.inner()))
+        let inner = crate::error::clip(&e.path().to_string(), crate::error::MAX_QUOTED_CHARS);
+        let path = if inner == "." || inner.trim().is_empty() { if what.is_empty() { "(request)".to_string() } else { what.to_string() } } else if what.is_empty() { inner } else { format!("{what}.{inner}") };
+        InputError::single(path, "", format!("does not follow the study schema: {}", crate::error::clip(&e.inner().to_string(), crate::error::MAX_QUOTED_CHARS)))
     })
 }
 

@@ -380,7 +380,7 @@ impl Search<'_> {
                 }
             }
         }
-        (best_t.clamp(lo, hi), best_v, scan)
+        (best_t.max(lo).min(hi), best_v, scan)
     }
 }
 
