@@ -95,10 +95,16 @@ pub fn run_design(bytes: &[u8]) -> Outcome {
         Ok(v) => v,
         Err(e) => return Outcome::Refused(e),
     };
+    // validate() and evaluate() of the binding both read the document first
+    // (Design::from_value); read once here, without copying a large document twice.
+    let design = match Design::from_value(value) {
+        Ok(d) => d,
+        Err(e) => return Outcome::Refused(e),
+    };
     // Validation is what the editor shows field by field; evaluation refuses more (a
     // sequence without a usable line, g(t) beyond its piece cap), with its own errors.
-    let problems = crate::page::validate_value(value.clone());
-    let r = crate::page::evaluate_value(value.clone(), Value::Null);
+    let problems = design.validate().err().map(|e| e.problems).unwrap_or_default();
+    let r = clockwright_core::evaluate(&design, &EvalOptions::default());
     if r.is_ok() && !problems.is_empty() {
         return Outcome::Accepted(vec![format!("evaluated although validation lists {} problems", problems.len())]);
     }
@@ -107,12 +113,8 @@ pub fn run_design(bytes: &[u8]) -> Outcome {
             return Outcome::Accepted(vec![format!("validation: {f}")]);
         }
     }
-    if r.is_ok() {
-        if let Ok(d) = Design::from_value(value) {
-            if Design::from_json(&d.to_json()).ok().as_ref() != Some(&d) {
-                return Outcome::Accepted(vec!["the design does not read back to itself from its JSON".into()]);
-            }
-        }
+    if r.is_ok() && Design::from_json(&design.to_json()).ok().as_ref() != Some(&design) {
+        return Outcome::Accepted(vec!["the design does not read back to itself from its JSON".into()]);
     }
     walk(r)
 }
