@@ -143,12 +143,17 @@ test("map: runs in the worker with progress, matches the engine, and can be canc
     }
     assert.equal(await page.locator(".study-contours g").count(), want.series[0].contours.length);
     await page.screenshot({ path: join(await artifactsDir(), "study-map.png"), fullPage: true });
-    // A large map: progress shows, Cancel stops it, the last map stays. Its y axis is the
-    // probe time, so every point needs a line-shape search of its own (no reuse of stages).
+    // A large map: progress shows, Cancel stops it, the last map stays. Its x axis (the one
+    // that changes from point to point) is the probe time, so every point needs a line-shape
+    // search of its own (no reuse of stages).
+    await page.selectOption('select[name="x-path"]', "sequence.segments[2].duration_s");
+    await page.fill('input[name="x-from"]', "0.01");
+    await page.fill('input[name="x-to"]', "0.5");
     await page.fill('input[name="x-points"]', "100");
-    await page.selectOption('select[name="y-path"]', "sequence.segments[2].duration_s");
-    await page.fill('input[name="y-from"]', "0.01");
-    await page.fill('input[name="y-to"]', "0.5");
+    await page.selectOption('select[name="x-spacing"]', "log");
+    await page.selectOption('select[name="y-path"]', "atoms.count");
+    await page.fill('input[name="y-from"]', "1");
+    await page.fill('input[name="y-to"]', "100");
     await page.fill('input[name="y-points"]', "100");
     await page.click(".study-row >> text=Run >> nth=0");
     await page.waitForFunction(() => {
