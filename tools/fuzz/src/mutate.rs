@@ -6,23 +6,20 @@
 //! (JSON tokens and field names, extreme numbers, CSV lines), and a fixed seed must replay
 //! the same inputs on every machine, which a small generator of our own guarantees.
 
+use clockwright_core::study::SplitMix64;
 use serde_json::{Map, Number, Value};
 
-/// SplitMix64 (a common-practice 64-bit generator): small, fast, and the same sequence for
-/// the same seed everywhere.
+/// The core's seeded SplitMix64 (the same sequence for the same seed everywhere) with the
+/// draws the generators need.
 #[derive(Clone)]
-pub struct Rng(u64);
+pub struct Rng(SplitMix64);
 
 impl Rng {
     pub fn new(seed: u64) -> Rng {
-        Rng(seed ^ 0x9E37_79B9_7F4A_7C15)
+        Rng(SplitMix64(seed ^ 0x9E37_79B9_7F4A_7C15))
     }
     pub fn next_u64(&mut self) -> u64 {
-        self.0 = self.0.wrapping_add(0x9E37_79B9_7F4A_7C15);
-        let mut z = self.0;
-        z = (z ^ (z >> 30)).wrapping_mul(0xBF58_476D_1CE4_E5B9);
-        z = (z ^ (z >> 27)).wrapping_mul(0x94D0_49BB_1331_11EB);
-        z ^ (z >> 31)
+        self.0.next_u64()
     }
     /// A whole number in `0..n` (n > 0).
     pub fn below(&mut self, n: usize) -> usize {

@@ -137,49 +137,16 @@ fn run() -> Result<()> {
     reset_dir(&page_dir)?;
     let js_out = page_dir.join("main.js");
     let css_out = page_dir.join("style.css");
-    run_cmd(Command::new(node_bin.join("esbuild")).current_dir(&root).args([
-        "www/src/main.ts".to_string(),
-        "--bundle".into(),
-        "--format=esm".into(),
-        "--platform=browser".into(),
-        "--target=es2020".into(),
-        "--minify".into(),
-        "--legal-comments=none".into(),
-        "--charset=utf8".into(),
-        "--log-level=warning".into(),
-        format!("--outfile={}", js_out.display()),
-    ]))?;
+    bundle_script(&node_bin, &root, "www/src/main.ts", "esm", "warning", &js_out)?;
     // The bootstrap, the page's only inline script: it inflates the program above from its
     // data block and starts it from a blob: URL.
     let boot_out = page_dir.join("boot.js");
-    run_cmd(Command::new(node_bin.join("esbuild")).current_dir(&root).args([
-        "www/src/boot.ts".to_string(),
-        "--bundle".into(),
-        "--format=esm".into(),
-        "--platform=browser".into(),
-        "--target=es2020".into(),
-        "--minify".into(),
-        "--legal-comments=none".into(),
-        "--charset=utf8".into(),
-        "--log-level=warning".into(),
-        format!("--outfile={}", boot_out.display()),
-    ]))?;
+    bundle_script(&node_bin, &root, "www/src/boot.ts", "esm", "warning", &boot_out)?;
     // The background worker: a classic script (started from a blob: URL by the page).
     let worker_out = page_dir.join("worker.js");
-    run_cmd(Command::new(node_bin.join("esbuild")).current_dir(&root).args([
-        "www/src/worker.ts".to_string(),
-        "--bundle".into(),
-        "--format=iife".into(),
-        "--platform=browser".into(),
-        "--target=es2020".into(),
-        "--minify".into(),
-        "--legal-comments=none".into(),
-        "--charset=utf8".into(),
-        // The wasm-bindgen glue mentions import.meta.url for fetching the module, which an
-        // IIFE lacks; the worker is always handed the module, so that warning is silenced.
-        "--log-level=error".into(),
-        format!("--outfile={}", worker_out.display()),
-    ]))?;
+    // The wasm-bindgen glue mentions import.meta.url for fetching the module, which an
+    // IIFE lacks; the worker is always handed the module, so that warning is silenced.
+    bundle_script(&node_bin, &root, "www/src/worker.ts", "iife", "error", &worker_out)?;
     run_cmd(Command::new(node_bin.join("esbuild")).current_dir(&root).args([
         "www/src/style.css".to_string(),
         "--bundle".into(),
@@ -330,6 +297,22 @@ fn target_dir(root: &Path) -> Result<PathBuf> {
 /// a non-executed data block) and `{{worker}}` (the background worker's script, compressed, in
 /// base 85, also a data block: the page starts it from a blob: URL) in one pass, so inserted text is never
 /// rescanned, and computes the Content-Security-Policy from the exact inline script and style.
+/// Bundles and minifies one script of the page with esbuild (`format`: esm or iife).
+fn bundle_script(node_bin: &Path, root: &Path, entry: &str, format: &str, log_level: &str, out: &Path) -> Result<()> {
+    run_cmd(Command::new(node_bin.join("esbuild")).current_dir(root).args([
+        entry.to_string(),
+        "--bundle".into(),
+        format!("--format={format}"),
+        "--platform=browser".into(),
+        "--target=es2020".into(),
+        "--minify".into(),
+        "--legal-comments=none".into(),
+        "--charset=utf8".into(),
+        format!("--log-level={log_level}"),
+        format!("--outfile={}", out.display()),
+    ]))
+}
+
 /// The page's data blocks, each compressed and in base 85 (never holding "</script").
 struct Blocks<'a> {
     wasm: &'a str,
