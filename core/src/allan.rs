@@ -35,14 +35,13 @@ pub enum Variance {
 }
 
 impl Variance {
+    /// The kernel at `u` from sin^2(u) (integrals sharing their nodes share the sine).
     #[inline]
-    fn kernel(self, u: f64) -> f64 {
+    fn kernel_sin2(self, u: f64, s2: f64) -> f64 {
         if u < 1e-4 {
             // Small-u limits: sin^4 u/u^2 ~ u^2, sin^6 u/u^4 ~ u^2.
             return u * u;
         }
-        let s = libm::sin(u);
-        let s2 = s * s;
         match self {
             Variance::Allan => s2 * s2 / (u * u),
             Variance::Modified => s2 * s2 * s2 / (u * u * u * u),
@@ -78,11 +77,18 @@ const LOG_PANEL: f64 = 1.0;
 /// The variance (not deviation) of spectrum `s` (S_y in 1/Hz as a function of f in Hz) at
 /// averaging time `tau`. `features` are frequencies (Hz) where `s` has kinks or steps.
 pub fn variance(s: &dyn Fn(f64) -> f64, tau: f64, which: Variance, features: &[f64]) -> f64 {
+    variances(&|f| [s(f)], tau, [which], features)[0]
+}
+
+/// [`variance`] of `K` spectra at once, each with its own variance, on the same nodes: the
+/// spectra are evaluated once per node (a table's interpolation, the sum of the terms), which
+/// is most of the cost. Each result equals [`variance`] of its spectrum alone, bit for bit.
+pub fn variances<const K: usize>(s: &dyn Fn(f64) -> [f64; K], tau: f64, which: [Variance; K], features: &[f64]) -> [f64; K] {
     let scale = PI * tau; // u = scale * f
     let f_of = |u: f64| u / scale;
     let mut feats: Vec<f64> = features.iter().map(|&f| f * scale).filter(|u| u.is_finite() && *u > 0.0).collect();
     feats.sort_by(|a, b| a.partial_cmp(b).unwrap_or(std::cmp::Ordering::Equal));
-    let mut total = 0.0;
+    let mut total = [0.0; K];
     // Oscillating range: panels of pi/2, split at features.
     let quarters = (U_SWITCH / (PI / 2.0)) as usize;
     let mut edges: Vec<f64> = (0..=quarters).map(|k| k as f64 * PI / 2.0).collect();
@@ -105,12 +111,14 @@ pub fn variance(s: &dyn Fn(f64) -> f64, tau: f64, which: Variance, features: &[f
         let (c, h) = ((a + b) / 2.0, (b - a) / 2.0);
         for (x, wt) in GL8 {
             let u = c + x * h;
-            total += wt * h * s(f_of(u)) * which.kernel(u);
+            let sv = s(f_of(u));
+            let sn = if u < 1e-4 { 0.0 } else { libm::sin(u) };
+            for k in 0..K {
+                total[k] += wt * h * sv[k] * which[k].kernel_sin2(u, sn * sn);
+            }
         }
     }
     // Averaged range on log panels up to well past the last feature.
-    let p = which.power();
-    let mean = which.mean();
     let big = feats.last().copied().unwrap_or(0.0).max(U_SWITCH);
     let u_end = big * 1e2;
     let mut ledges: Vec<f64> = Vec::new();
@@ -121,7 +129,14 @@ pub fn variance(s: &dyn Fn(f64) -> f64, tau: f64, which: Variance, features: &[f
     }
     ledges.extend(feats.iter().filter(|&&u| u > U_SWITCH && u < u_end).map(|&u| libm::log(u)));
     ledges.sort_by(|a, b| a.partial_cmp(b).unwrap_or(std::cmp::Ordering::Equal));
-    let f_avg = |u: f64| s(f_of(u)) / crate::noise::powi(u, p);
+    let f_avg = |u: f64| {
+        let sv = s(f_of(u));
+        let mut out = [0.0; K];
+        for k in 0..K {
+            out[k] = sv[k] / crate::noise::powi(u, which[k].power());
+        }
+        out
+    };
     for w in ledges.windows(2) {
         let (a, b) = (w[0], w[1]);
         if b - a <= 0.0 {
@@ -130,22 +145,32 @@ pub fn variance(s: &dyn Fn(f64) -> f64, tau: f64, which: Variance, features: &[f
         let (c, h) = ((a + b) / 2.0, (b - a) / 2.0);
         for (x, wt) in GL8 {
             let u = libm::exp(c + x * h);
-            total += wt * h * mean * f_avg(u) * u;
+            let fa = f_avg(u);
+            for k in 0..K {
+                total[k] += wt * h * which[k].mean() * fa[k] * u;
+            }
         }
     }
     // Power-law tail beyond u_end.
     let (fa, fb) = (f_avg(u_end / 2.0), f_avg(u_end));
-    if fa > 0.0 && fb > 0.0 {
-        let slope = libm::log(fb / fa) / LN_2;
-        if slope < -1.0 {
-            total += mean * fb * u_end / (-(slope + 1.0));
+    for k in 0..K {
+        if fa[k] > 0.0 && fb[k] > 0.0 {
+            let slope = libm::log(fb[k] / fa[k]) / LN_2;
+            if slope < -1.0 {
+                total[k] += which[k].mean() * fb[k] * u_end / (-(slope + 1.0));
+            }
         }
     }
     // Boundary term of the oscillating part at U_SWITCH (a multiple of pi).
     let du = 1e-3 * U_SWITCH;
-    let deriv = (f_avg(U_SWITCH + du) - f_avg(U_SWITCH - du)) / (2.0 * du);
-    total += which.boundary() * deriv;
-    (2.0 / scale) * total.max(0.0)
+    let (fp, fm) = (f_avg(U_SWITCH + du), f_avg(U_SWITCH - du));
+    let mut out = [0.0; K];
+    for k in 0..K {
+        let deriv = (fp[k] - fm[k]) / (2.0 * du);
+        total[k] += which[k].boundary() * deriv;
+        out[k] = (2.0 / scale) * total[k].max(0.0);
+    }
+    out
 }
 
 /// IEEE Std 1139-2008 closed form of the Allan variance of one power-law term

@@ -157,14 +157,54 @@ impl Model {
     /// Free-running laser, drift included: closed forms for the power laws
     /// (IEEE Std 1139-2008), the transfer-function integral for a table.
     fn free_var(&self, tau: f64, with_drift: bool) -> f64 {
+        let table = if self.spec.table.is_some() { variance(&|f| self.spec.table_s_y(f), tau, Variance::Allan, &self.features) } else { 0.0 };
+        self.free_var_with(tau, table, with_drift)
+    }
+    /// [`Model::free_var`] given the table's Allan variance at `tau`.
+    fn free_var_with(&self, tau: f64, table_var: f64, with_drift: bool) -> f64 {
         let mut v: f64 = self.spec.terms.iter().map(|&(a, h)| allan_variance_power_law(a, h, tau, self.spec.f_high)).sum();
         if self.spec.table.is_some() {
-            v += variance(&|f| self.spec.table_s_y(f), tau, Variance::Allan, &self.features);
+            v += table_var;
         }
         if with_drift {
             v += self.drift * self.drift * tau * tau / 2.0;
         }
         v
+    }
+    /// One point of the curve: `(parts, modified deviation, free-running variance with
+    /// drift)`, the same numbers as [`Model::parts`], [`Model::mod_total`] and
+    /// [`Model::free_var`], with the transfer-function integrals they need computed on
+    /// shared nodes (the spectrum evaluated once per node instead of three times).
+    fn curve_point(&self, tau: f64) -> ([f64; 3], f64, f64) {
+        if self.frequency_power_laws_only() {
+            return (self.parts(tau), self.mod_total(tau), self.free_var(tau, true));
+        }
+        let lp = allan_variance_lowpass_white(1.0, tau, self.attack_s);
+        let h0 = self.h0_projection + self.h0_dick;
+        let locked = |f: f64, sy: f64| {
+            let x = 2.0 * PI * f * self.attack_s;
+            let lpf = 1.0 / (1.0 + x * x);
+            let laser = sy * self.highpass(f);
+            (laser, laser + h0 * lpf)
+        };
+        let (laser, modv, table) = if self.spec.table.is_some() {
+            let s = |f: f64| {
+                let (sy, tb) = self.spec.s_y_and_table(f);
+                let (l, m) = locked(f, sy);
+                [l, m, tb]
+            };
+            let [l, m, t] = variances(&s, tau, [Variance::Allan, Variance::Modified, Variance::Allan], &self.features);
+            (l, m, t)
+        } else {
+            let s = |f: f64| {
+                let (l, m) = locked(f, self.spec.s_y(f));
+                [l, m]
+            };
+            let [l, m] = variances(&s, tau, [Variance::Allan, Variance::Modified], &self.features);
+            (l, m, 0.0)
+        };
+        let parts = [laser, self.h0_projection * lp, self.h0_dick * lp];
+        (parts, libm::sqrt(modv), self.free_var_with(tau, table, true))
     }
 }
 
@@ -317,8 +357,8 @@ impl LockedModel {
     /// Allan variances by mechanism `[laser, projection, dick]` and the modified Allan
     /// variance (fractional, squared) at `tau_s` (s, within (0, 1e9]; not checked here).
     pub fn variances(&self, tau_s: f64) -> ([f64; 3], f64) {
-        let m = self.model.mod_total(tau_s);
-        (self.model.parts(tau_s), m * m)
+        let (p, m, _) = self.model.curve_point(tau_s);
+        (p, m * m)
     }
 
     /// Allan deviation of the locked laser at `tau_s` (s), all mechanisms (fractional).
@@ -358,6 +398,9 @@ fn sigma_1s_equivalent(projection_1s: f64, dick_1s: f64) -> f64 {
 
 /// Laser coherence over a probe of `t` s: the phase of the free laser's frequency wander
 /// between consecutive probes, 2 pi nu0 N T sqrt(2) sigma_y(T) (common practice).
+/// Halvings of the bracket [1e-7 s, 1e5 s] in the search for the coherence limit.
+const COHERENCE_BISECTIONS: usize = 40;
+
 fn phase_rms(model: &Model, nu0: f64, n_phase: f64, t: f64) -> f64 {
     2.0 * PI * nu0 * n_phase * t * libm::sqrt(2.0 * model.free_var(t, false))
 }
@@ -407,18 +450,25 @@ pub fn evaluate_with_cache(d: &Design, opt: &EvalOptions, cache: &mut StageCache
     let nu0 = d.transition.frequency_hz;
     let Built { model, probe, ro, op, proj, gf, dick } = build_with(d, cache)?;
     let sigma_dick_1s = libm::sqrt(dick.variance_coefficient);
+    // Every curve point holds the projection and Dick parts: when either is beyond double
+    // precision the result cannot be finite, so it is refused before the curve is made.
+    for (path, v) in [("result.projection.sigma_1s", proj.sigma_1s), ("result.dick.sigma_1s", sigma_dick_1s)] {
+        if !v.is_finite() {
+            return Err(crate::finite::out_of_range(path.into(), format!("{} (out of the double-precision range)", crate::error::show(v))));
+        }
+    }
     let attack_s = d.lock.attack_time_s;
 
     let taus = log_grid(cycle, opt.tau_max_s, opt.tau_points);
     let mut curve = Curve { tau_s: taus.clone(), total: vec![], laser: vec![], projection: vec![], dick: vec![], mod_total: vec![], free_laser: vec![] };
     for &tau in &taus {
-        let p = model.parts(tau);
+        let (p, mod_total, free) = model.curve_point(tau);
         curve.laser.push(libm::sqrt(p[0]));
         curve.projection.push(libm::sqrt(p[1]));
         curve.dick.push(libm::sqrt(p[2]));
         curve.total.push(libm::sqrt(p.iter().sum()));
-        curve.mod_total.push(model.mod_total(tau));
-        curve.free_laser.push(libm::sqrt(model.free_var(tau, true)));
+        curve.mod_total.push(mod_total);
+        curve.free_laser.push(libm::sqrt(free));
     }
     let sigma_1s_equivalent = sigma_1s_equivalent(proj.sigma_1s, sigma_dick_1s);
 
@@ -451,7 +501,9 @@ pub fn evaluate_with_cache(d: &Design, opt: &EvalOptions, cache: &mut StageCache
         } else if phase_rms(libm::exp(a)) > 1.0 {
             Some(libm::exp(a))
         } else {
-            for _ in 0..60 {
+            // 40 halvings of ln(1e12) leave the limit known to 3e-11 relative; each step
+            // is one transfer-function integral when the laser has a table.
+            for _ in 0..COHERENCE_BISECTIONS {
                 let m = (a + b) / 2.0;
                 if phase_rms(libm::exp(m)) < 1.0 { a = m } else { b = m }
             }

@@ -17,12 +17,14 @@ pub fn require_finite<T: Serialize + ?Sized>(value: &T, what: &str) -> Result<()
     let bad = non_finite(value);
     match bad.first() {
         None => Ok(()),
-        Some(first) => Err(InputError::single(
-            format!("{what}.{}", crate::error::clip(first, crate::error::MAX_QUOTED_CHARS)),
-            format!("{} numbers out of the double-precision range", bad.len()),
-            "the inputs combine beyond the range this model computes in; bring the most extreme values (noise levels, cut-off, times) nearer to typical ones",
-        )),
+        Some(first) => Err(out_of_range(format!("{what}.{}", crate::error::clip(first, crate::error::MAX_QUOTED_CHARS)), format!("{} numbers out of the double-precision range", bad.len()))),
     }
+}
+
+/// The error of a result number beyond double precision, at `path`; `value` says which
+/// and how many numbers. Also for an early refusal, before the rest of a result is made.
+pub fn out_of_range(path: String, value: String) -> InputError {
+    InputError::single(path, value, "the inputs combine beyond the range this model computes in; bring the most extreme values (noise levels, cut-off, times) nearer to typical ones")
 }
 
 /// The paths of all non-finite numbers in `value` (empty when everything is finite).

@@ -303,7 +303,16 @@ impl Spectrum {
 
     /// Builds S_y from a laser description; `nu0` converts absolute and phase units.
     pub fn from_laser(laser: &crate::design::Laser, nu0: f64) -> Spectrum {
-        let terms = laser.noise.iter().map(|t| t.h(nu0)).collect();
+        // S_y is linear in the terms: those of one exponent are summed into one, so a laser
+        // of many terms costs at most five powers per evaluation of S_y.
+        let mut terms: Vec<(i32, f64)> = Vec::new();
+        for t in &laser.noise {
+            let (a, h) = t.h(nu0);
+            match terms.iter_mut().find(|x| x.0 == a) {
+                Some(x) => x.1 += h,
+                None => terms.push((a, h)),
+            }
+        }
         let table = laser.table.as_ref().map(|t| {
             let ln_f: Vec<f64> = t.points.iter().map(|p| libm::log(p[0])).collect();
             let ln_s = t.points.iter().map(|p| libm::log(t.unit.to_s_y(p[1], p[0], nu0).max(1e-300))).collect();
@@ -315,6 +324,12 @@ impl Spectrum {
     /// S_y(f), 1/Hz.
     #[inline]
     pub fn s_y(&self, f: f64) -> f64 {
+        self.s_y_and_table(f).0
+    }
+
+    /// S_y(f) and its tabulated part alone, from one evaluation of the table, 1/Hz.
+    #[inline]
+    pub fn s_y_and_table(&self, f: f64) -> (f64, f64) {
         let mut s = 0.0;
         for &(a, h) in &self.terms {
             if a >= 1 && f > self.f_high {
@@ -322,7 +337,8 @@ impl Spectrum {
             }
             s += h * powi(f, a);
         }
-        s + self.table_s_y(f)
+        let t = self.table_s_y(f);
+        (s + t, t)
     }
 
     /// The tabulated part of S_y(f) alone (0 without a table or above the cut-off), 1/Hz.

@@ -128,3 +128,68 @@ fn dick_scaling_laws() {
         assert!(ratio < 0.15, "dead time 1000 times shorter leaves {ratio} of the Dick term");
     }
 }
+
+/// Laser terms of one exponent are summed into one when the spectrum is built (S_y is
+/// linear in them): S_y at random frequencies against the direct sum over the terms as
+/// written (slow twin), and an evaluation with a term split in two against the term whole.
+#[test]
+fn terms_of_one_exponent_sum_into_one() {
+    use clockwright_core::noise::{NoiseTerm, Spectrum, SpectrumUnit};
+    let mut rng = common::Rng(77);
+    for _ in 0..100 {
+        let nu0 = rng.log_uniform(1e14, 2e15);
+        let f_high = rng.log_uniform(10.0, 1e6);
+        let mut terms = Vec::new();
+        for _ in 0..1 + (rng.next_u64() % 16) as usize {
+            let alpha = (rng.next_u64() % 5) as i32 - 2;
+            terms.push(match rng.next_u64() % 3 {
+                0 => NoiseTerm::PowerLaw { alpha, coefficient: rng.log_uniform(1e-36, 1e-28), unit: SpectrumUnit::SY },
+                1 => NoiseTerm::PowerLawAt { alpha, at_hz: rng.log_uniform(0.1, 1e3), value: rng.uniform(-120.0, -20.0), unit: SpectrumUnit::LDbc },
+                _ => NoiseTerm::WhiteFrequency { sigma_y_1s: rng.log_uniform(1e-17, 1e-14) },
+            });
+        }
+        let mut laser = common::laser(terms.clone());
+        laser.high_cutoff_hz = f_high;
+        let spec = Spectrum::from_laser(&laser, nu0);
+        assert!(spec.terms.len() <= 5);
+        for _ in 0..20 {
+            let f = rng.log_uniform(1e-4, 1e7);
+            let direct: f64 = terms
+                .iter()
+                .map(|t| t.h(nu0))
+                .filter(|&(a, _)| !(a >= 1 && f > f_high))
+                .map(|(a, h)| h * f.powi(a))
+                .sum();
+            assert!(rel(spec.s_y(f), direct) < 1e-13, "f {f}: {} vs {direct}", spec.s_y(f));
+        }
+    }
+    // White FM of sigma split into two terms of sigma / sqrt(2) each (h0 = 2 sigma^2).
+    let whole = common::design(4.3e14, 1, vec![common::pulse(0.1, 1.0)], 0.05, common::white_laser(2e-15));
+    let mut split = whole.clone();
+    let s = 2e-15 / 2f64.sqrt();
+    split.laser.noise = vec![NoiseTerm::WhiteFrequency { sigma_y_1s: s }, NoiseTerm::WhiteFrequency { sigma_y_1s: s }];
+    let (a, b) = (evaluate(&whole, &Default::default()).unwrap(), evaluate(&split, &Default::default()).unwrap());
+    for (x, y) in a.curve.total.iter().zip(&b.curve.total) {
+        assert!(rel(*x, *y) < 1e-13, "{x} vs {y}");
+    }
+    assert!(rel(a.dick.sigma_1s, b.dick.sigma_1s) < 1e-13);
+}
+
+/// A Dick sum beyond double precision stops at the first harmonic that overflows, and the
+/// evaluation refuses it at once, naming the Dick part, instead of making a curve of
+/// infinities first.
+#[test]
+fn dick_sum_beyond_double_range_is_refused_early() {
+    use clockwright_core::noise::{NoiseTerm, Spectrum, SpectrumUnit};
+    // Valid fields whose level overflows: S_y(1e-200 Hz) = 1e30 for f^2 noise, h_2 = 1e430.
+    let mut laser = common::laser(vec![NoiseTerm::PowerLawAt { alpha: 2, at_hz: 1e-200, value: 1e30, unit: SpectrumUnit::SY }]);
+    laser.high_cutoff_hz = 1e6;
+    let d = common::design(4.3e14, 1, vec![common::pulse(0.1, 1.0)], 0.05, laser);
+    let gf = clockwright_core::sensitivity::SensitivityFunction::new(&clockwright_core::sequence::Probe::from_design(&d), 0.0).unwrap();
+    let sum = clockwright_core::dick::dick_sum(&gf, &Spectrum::from_laser(&d.laser, 4.3e14));
+    assert!(!sum.variance_coefficient.is_finite());
+    assert!(sum.harmonics_summed <= 2, "stopped after {} harmonics", sum.harmonics_summed);
+    let e = evaluate(&d, &Default::default()).unwrap_err();
+    assert_eq!(e.problems[0].path, "result.dick.sigma_1s", "{e}");
+    assert!(e.problems[0].value.contains("out of the double-precision range"), "{e}");
+}
