@@ -359,9 +359,8 @@ pub fn mutate_csv(rng: &mut Rng, input: &[u8], others: &[Vec<u8>]) -> Vec<u8> {
                 let l = lines[i].clone();
                 let most = (4_000_000 / (l.len() + 1)).clamp(1, 50_000);
                 let times = if rng.chance(0.2) { 1 + rng.below(most) } else { 1 + rng.below(5) };
-                for _ in 0..times {
-                    lines.insert(i, l.clone());
-                }
+                // One splice, not `times` inserts (each of which moves every later line).
+                lines.splice(i..i, std::iter::repeat_n(l, times));
             }
             1 if lines.len() > 1 => {
                 lines.remove(i);
