@@ -137,3 +137,45 @@ fn fourier_coefficients_match_direct_quadrature() {
         }
     }
 }
+
+/// Long pulses of many Rabi cycles under decay (hundreds of g(t) pieces, whose integrals
+/// the harmonic generator takes four at a time, by Taylor form and by moments): the
+/// Fourier coefficients against direct quadrature (composite Simpson on 400 000
+/// intervals) of the same g(t), at harmonics on both sides of the Taylor/moment switch.
+#[test]
+fn fourier_coefficients_of_many_piece_pulses_match_direct_quadrature() {
+    let mut rng = Rng(909);
+    for case in 0..4 {
+        let dur = rng.log_uniform(0.01, 1.0);
+        let mut d = design(4.3e14, 1, vec![pulse(dur, rng.uniform(20.0, 50.0))], rng.uniform(0.0, 0.5) * dur, white_laser(1e-15));
+        d.transition.lifetime_s = Some(dur * rng.log_uniform(0.3, 30.0));
+        let probe = Probe::from_design(&d);
+        let gf = SensitivityFunction::new(&probe, 0.2 / probe.duration_s()).unwrap();
+        let pieces = gf.pieces.iter().filter(|p| !p.coef.is_empty()).count();
+        assert!(pieces >= 64, "case {case}: only {pieces} pieces");
+        let tc = probe.cycle_s;
+        // theta = 2 pi m h / T_c crosses 3 near m = 3 T_c / (2 pi h).
+        let h = dur / pieces as f64;
+        let m_switch = (3.0 * tc / (2.0 * PI * h)) as usize;
+        let ms = [1usize, 5, 37, m_switch.saturating_sub(1).max(1), m_switch + 2, 2 * m_switch + 3];
+        let fast = fourier_coefficients(&gf, *ms.iter().max().unwrap());
+        let n = 400_000;
+        let dt = tc / n as f64;
+        for &m in &ms {
+            let (mut re, mut im) = (0.0, 0.0);
+            for k in 0..=n {
+                let t = (k as f64 * dt).min(tc * (1.0 - 1e-15));
+                let w = if k == 0 || k == n { 1.0 } else if k % 2 == 1 { 4.0 } else { 2.0 };
+                let g = gf.at(t);
+                let ph = -2.0 * PI * m as f64 * t / tc;
+                re += w * g * ph.cos();
+                im += w * g * ph.sin();
+            }
+            re *= dt / 3.0 / tc;
+            im *= dt / 3.0 / tc;
+            let c = fast[m - 1];
+            let gmax = gf.max_abs();
+            assert!(((c.re - re).powi(2) + (c.im - im).powi(2)).sqrt() < 1e-7 * gmax, "case {case} m {m} ({pieces} pieces): {c} vs {re}+{im}i");
+        }
+    }
+}

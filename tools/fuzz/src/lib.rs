@@ -168,8 +168,10 @@ pub struct Stats {
 
 /// Runs `inputs` inputs (or until `budget` has passed, whichever comes first) through one
 /// entry: the seeds themselves first, then mutations from the seeded generator.
-/// With `progress`, a line of figures is printed every minute.
-pub fn pass(entry: &Entry, seeds: &Seeds, seed: u64, inputs: u64, budget: Option<Duration>, progress: bool) -> Stats {
+/// With `progress`, a line of figures is printed every minute. The first 20 failing inputs
+/// are written to `failures` as they are found (a long pass stopped early keeps them) and
+/// named on standard output.
+pub fn pass(entry: &Entry, seeds: &Seeds, seed: u64, inputs: u64, budget: Option<Duration>, progress: bool, failures: &Path) -> Stats {
     let mut rng = Rng::new(seed ^ fnv(entry.name.as_bytes()));
     let mut s = Stats::default();
     let start = Instant::now();
@@ -215,6 +217,12 @@ pub fn pass(entry: &Entry, seeds: &Seeds, seed: u64, inputs: u64, budget: Option
             Some(f) => {
                 s.failures += 1;
                 if s.found.len() < 20 {
+                    match write_failure(failures, entry, &input, &f) {
+                        Ok(file) => println!("    FAILED {}: {f}", file.display()),
+                        Err(e) => println!("    FAILED (not written: {e}): {f}"),
+                    }
+                    use std::io::Write;
+                    let _ = std::io::stdout().flush();
                     s.found.push((input, f));
                 }
             }

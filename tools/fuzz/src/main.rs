@@ -9,7 +9,7 @@
 //! exits 1 when any input failed (written to tests/fuzz/failures/).
 
 use clockwright_fuzz::entries::{entry, ENTRIES};
-use clockwright_fuzz::{check, load_seeds, pass, quiet_panics, write_failure};
+use clockwright_fuzz::{check, load_seeds, pass, quiet_panics};
 use std::path::PathBuf;
 use std::process::ExitCode;
 use std::time::Duration;
@@ -74,17 +74,13 @@ fn run(args: &[String]) -> Result<ExitCode, String> {
     let mut failed = 0;
     for e in chosen {
         let seeds = load_seeds(&corpus, e).map_err(|x| format!("reading the corpus of {}: {x}", e.name))?;
-        let s = pass(e, &seeds, seed, inputs, seconds.map(Duration::from_secs_f64), seconds.is_none());
+        let s = pass(e, &seeds, seed, inputs, seconds.map(Duration::from_secs_f64), seconds.is_none(), &failures);
         let rate = s.inputs as f64 / s.total.as_secs_f64().max(1e-9);
         let slow_file = if s.slowest_input.is_empty() { String::new() } else { format!("{} bytes", s.slowest_input.len()) };
         println!(
             "{:<13} {:>9} {:>9} {:>9} {:>7} {:>6} {:>9.0} {:>8.2}ms  {}",
             e.name, s.inputs, s.accepted, s.refused, s.range_guard, s.failures, rate, s.slowest.as_secs_f64() * 1e3, slow_file
         );
-        for (input, why) in &s.found {
-            let f = write_failure(&failures, e, input, why).map_err(|x| format!("writing a failure: {x}"))?;
-            println!("    FAILED {}: {why}", f.display());
-        }
         failed += s.failures;
     }
     Ok(if failed == 0 { ExitCode::SUCCESS } else { ExitCode::FAILURE })
