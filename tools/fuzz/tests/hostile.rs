@@ -4,7 +4,7 @@
 //! The same files go through the page itself in tests/browser/hostile.test.mjs.
 
 use clockwright_core::InputError;
-use clockwright_fuzz::{check, entries, readable, TIME_LIMIT};
+use clockwright_fuzz::{check_within, entries, readable};
 use serde_json::Value;
 use std::path::PathBuf;
 
@@ -36,13 +36,12 @@ fn verdict(kind: &str, name: &str, bytes: &[u8]) -> (bool, String) {
         _ => None,
     };
     if let Some(e) = entry {
-        let c = check(e, bytes);
+        // Behaviour only; the time of inputs is judged by the long fuzz pass, not a test.
+        let c = check_within(e, bytes, None);
         assert!(c.failure.is_none(), "{kind}/{name}: {}", c.failure.map(|f| f.to_string()).unwrap_or_default());
         return (c.accepted, String::new());
     }
-    let t0 = std::time::Instant::now();
     let r = workspace(bytes);
-    assert!(t0.elapsed() < TIME_LIMIT * 4, "{kind}/{name}: {:?}", t0.elapsed());
     match r {
         Ok(evals) => {
             for ev in &evals {
@@ -96,12 +95,10 @@ fn ten_megabyte_lines_are_refused_by_line() {
         let mut text = String::from(head);
         text.push_str(&"1,".repeat(5_000_000));
         text.push('\n');
-        let t0 = std::time::Instant::now();
         let e = match kind {
             "spectrum_csv" => clockwright_fuzz::page::parse_spectrum_csv(&text).map(|_| ()).unwrap_err(),
             _ => clockwright_fuzz::page::import_measured_value(&text, Value::Null).map(|_| ()).unwrap_err(),
         };
-        assert!(t0.elapsed() < TIME_LIMIT, "{kind}: {:?}", t0.elapsed());
         let line = head.lines().count() + 1;
         assert_eq!(e.problems[0].path, format!("line {line}"), "{kind}: {e}");
         assert!(e.problems[0].allowed.contains("1000 bytes"), "{kind}: {e}");
