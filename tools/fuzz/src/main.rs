@@ -1,10 +1,11 @@
 //! `clockwright-fuzz`: the fuzz passes of `./dev test` (short) and `./dev fuzz` (long).
 //!
 //! ```text
-//! clockwright-fuzz [--inputs N] [--seconds S] [--seed X] [--entry NAME]... [--root DIR] [--no-time-limit]
+//! clockwright-fuzz [--inputs N] [--seconds S] [--seed X] [--entry NAME]... [--root DIR] [--time-limit MS | --no-time-limit]
 //! clockwright-fuzz --replay ENTRY FILE...
 //! ```
 //! `--inputs` is per entry (default 1e6); `--seconds` caps each entry's time;
+//! `--time-limit MS` fails inputs slower than MS milliseconds of CPU time (default 100);
 //! `--no-time-limit` measures each input's time without failing slow ones (the test
 //! command's short pass: behaviour is tested, speed is judged by the long pass). Prints per
 //! entry the inputs, accepted and refused counts, inputs per second and the slowest input;
@@ -62,13 +63,17 @@ fn run(args: &[String]) -> Result<ExitCode, String> {
                 limit = None;
                 i += 1;
             }
+            "--time-limit" => {
+                limit = Some(Duration::from_secs_f64(num(i, "--time-limit")? / 1e3));
+                i += 2;
+            }
             "--root" => {
                 root = PathBuf::from(args.get(i + 1).ok_or("--root needs a directory")?);
                 i += 2;
             }
             "--replay" => return replay(&args[i + 1..]),
             "-h" | "--help" => {
-                println!("clockwright-fuzz [--inputs N] [--seconds S] [--seed X] [--entry NAME]... [--root DIR] [--no-time-limit]\nclockwright-fuzz --replay ENTRY FILE...\nentries: {}", ENTRIES.iter().map(|e| e.name).collect::<Vec<_>>().join(", "));
+                println!("clockwright-fuzz [--inputs N] [--seconds S] [--seed X] [--entry NAME]... [--root DIR] [--time-limit MS | --no-time-limit]\nclockwright-fuzz --replay ENTRY FILE...\nentries: {}", ENTRIES.iter().map(|e| e.name).collect::<Vec<_>>().join(", "));
                 return Ok(ExitCode::SUCCESS);
             }
             other => return Err(format!("unknown argument {other} (try --help)")),
