@@ -396,11 +396,11 @@ fn sigma_1s_equivalent(projection_1s: f64, dick_1s: f64) -> f64 {
     libm::sqrt(projection_1s * projection_1s + dick_1s * dick_1s)
 }
 
-/// Laser coherence over a probe of `t` s: the phase of the free laser's frequency wander
-/// between consecutive probes, 2 pi nu0 N T sqrt(2) sigma_y(T) (common practice).
 /// Halvings of the bracket [1e-7 s, 1e5 s] in the search for the coherence limit.
 const COHERENCE_BISECTIONS: usize = 40;
 
+/// Laser coherence over a probe of `t` s: the phase of the free laser's frequency wander
+/// between consecutive probes, 2 pi nu0 N T sqrt(2) sigma_y(T) (common practice).
 fn phase_rms(model: &Model, nu0: f64, n_phase: f64, t: f64) -> f64 {
     2.0 * PI * nu0 * n_phase * t * libm::sqrt(2.0 * model.free_var(t, false))
 }
