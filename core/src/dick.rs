@@ -199,9 +199,7 @@ impl TaylorForm {
         };
         Complex64::new(part(&self.even), -theta * part(&self.odd))
     }
-}
 
-impl TaylorForm {
     /// [`TaylorForm::eval`] of four forms at one `theta`, the sixteen Horner chains
     /// interleaved; each value is bit for bit what `eval` gives.
     #[inline]
