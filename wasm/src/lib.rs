@@ -238,10 +238,15 @@ export interface ProjectionResult {
   squeezing_factor: number;
 }
 export interface DickResult {
+  /** Dick-effect Allan deviation at 1 s (white: sigma(tau) = this / sqrt(tau)). */
   sigma_1s: number;
+  /** Harmonics summed one by one before the analytic tail. */
   harmonics_summed: number;
+  /** Bound on the relative error of the Dick variance from ending the sum there. */
   truncation_bound_relative: number;
+  /** |g_m|^2 / g_0^2 for m = 1, 2, ... (the first 64). */
   weights: number[];
+  /** g_0 = (1/T_c) times the integral of g(t) over one cycle (the weights are relative to it). */
   g0: number;
 }
 export interface Curve {
