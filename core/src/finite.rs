@@ -17,7 +17,12 @@ pub fn require_finite<T: Serialize + ?Sized>(value: &T, what: &str) -> Result<()
     let bad = non_finite(value);
     match bad.first() {
         None => Ok(()),
-        Some(first) => Err(out_of_range(format!("{what}.{}", crate::error::clip(first, crate::error::MAX_QUOTED_CHARS)), format!("{} numbers out of the double-precision range", bad.len()))),
+        Some(first) => {
+            // Each entry reads `path = value`: the path names the field, the value leads.
+            let (at, x) = first.split_once(" = ").unwrap_or((first.as_str(), "not finite"));
+            let more = if bad.len() > 1 { format!(", {} numbers in all", bad.len()) } else { String::new() };
+            Err(out_of_range(format!("{what}.{}", crate::error::clip(at, crate::error::MAX_QUOTED_CHARS)), format!("{x} (out of the double-precision range{more})")))
+        }
     }
 }
 
@@ -217,7 +222,7 @@ impl ser::SerializeStructVariant for Compound<'_> {
 
 #[cfg(test)]
 mod tests {
-    use super::non_finite;
+    use super::{non_finite, require_finite};
     use serde::Serialize;
     use std::collections::BTreeMap;
 
@@ -243,6 +248,17 @@ mod tests {
         m.insert("k".to_string(), (1.0, Some(f64::NEG_INFINITY)));
         let o = Outer { ok: 1.0, inner: Inner { x: vec![0.0, f64::NAN], m }, kind: Kind::A { v: f64::INFINITY } };
         assert_eq!(non_finite(&o), vec!["inner.x[1] = NaN", "inner.m.k[1] = -inf", "kind.A.v = inf"]);
+    }
+
+    /// The refusal names the first field alone as its path, and its value with the count.
+    #[test]
+    fn refusal_names_the_field_and_its_value() {
+        let o = Outer { ok: 1.0, inner: Inner { x: vec![0.0, f64::NAN], m: BTreeMap::new() }, kind: Kind::A { v: f64::INFINITY } };
+        let e = require_finite(&o, "result").unwrap_err();
+        assert_eq!(e.problems.len(), 1);
+        assert_eq!(e.problems[0].path, "result.inner.x[1]");
+        assert_eq!(e.problems[0].value, "NaN (out of the double-precision range, 2 numbers in all)");
+        assert!(e.problems[0].allowed.contains("nearer to typical ones"));
     }
 
     #[test]
