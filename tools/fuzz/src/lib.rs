@@ -175,12 +175,28 @@ pub struct Stats {
     pub found: Vec<(Vec<u8>, Failure)>,
 }
 
-/// Runs `inputs` inputs (or until `budget` has passed, whichever comes first) through one
-/// entry: the seeds themselves first, then mutations from the seeded generator.
-/// With `progress`, a line of figures is printed every minute. The first 20 failing inputs
-/// are written to `failures` as they are found (a long pass stopped early keeps them) and
-/// named on standard output.
-pub fn pass(entry: &Entry, seeds: &Seeds, seed: u64, inputs: u64, budget: Option<Duration>, progress: bool, failures: &Path, limit: Option<Duration>) -> Stats {
+/// How one pass runs.
+pub struct Plan<'a> {
+    /// Seed of the generator (combined with the entry's name).
+    pub seed: u64,
+    /// Inputs per entry.
+    pub inputs: u64,
+    /// Wall time per entry, if any: the pass ends at whichever comes first.
+    pub budget: Option<Duration>,
+    /// A line of figures every minute.
+    pub progress: bool,
+    /// Where failing inputs are written.
+    pub failures: &'a Path,
+    /// Longest CPU time of one input ([`check_within`]); `None` measures only.
+    pub limit: Option<Duration>,
+}
+
+/// Runs `plan.inputs` inputs (or until `plan.budget` has passed) through one entry: the
+/// seeds themselves first, then mutations from the seeded generator. The first 20 failing
+/// inputs are written to `plan.failures` as they are found (a long pass stopped early keeps
+/// them) and named on standard output.
+pub fn pass(entry: &Entry, seeds: &Seeds, plan: &Plan) -> Stats {
+    let Plan { seed, inputs, budget, progress, failures, limit } = *plan;
     let mut rng = Rng::new(seed ^ fnv(entry.name.as_bytes()));
     let mut s = Stats::default();
     let start = Instant::now();

@@ -12,7 +12,7 @@
 //! exits 1 when any input failed (written to tests/fuzz/failures/).
 
 use clockwright_fuzz::entries::{entry, ENTRIES};
-use clockwright_fuzz::{check, load_seeds, pass, quiet_panics};
+use clockwright_fuzz::{check, load_seeds, pass, quiet_panics, Plan};
 use std::path::PathBuf;
 use std::process::ExitCode;
 use std::time::Duration;
@@ -86,7 +86,8 @@ fn run(args: &[String]) -> Result<ExitCode, String> {
     let mut failed = 0;
     for e in chosen {
         let seeds = load_seeds(&corpus, e).map_err(|x| format!("reading the corpus of {}: {x}", e.name))?;
-        let s = pass(e, &seeds, seed, inputs, seconds.map(Duration::from_secs_f64), seconds.is_none(), &failures, limit);
+        let plan = Plan { seed, inputs, budget: seconds.map(Duration::from_secs_f64), progress: seconds.is_none(), failures: &failures, limit };
+        let s = pass(e, &seeds, &plan);
         let rate = s.inputs as f64 / s.total.as_secs_f64().max(1e-9);
         let slow_file = if s.slowest_input.is_empty() { String::new() } else { format!("{} bytes", s.slowest_input.len()) };
         println!(
