@@ -599,16 +599,25 @@ pub fn evaluate_with_cache(d: &Design, opt: &EvalOptions, cache: &mut StageCache
 }
 
 fn time_to_target(model: &Model, curve: &Curve, target: f64, sigma_1s_eq: f64) -> TargetResult {
+    let (time_s, note) = target_time(model, curve, target, sigma_1s_eq);
+    // What limits the clock when it reaches the target: the model's own parts there.
+    let dominant = time_s.map(|t| dominant(&model.parts(t)));
+    TargetResult { target, time_s, note: note.into(), dominant }
+}
+
+/// The averaging time at which the locked laser reaches `target` and stays below, and how
+/// it was found.
+fn target_time(model: &Model, curve: &Curve, target: f64, sigma_1s_eq: f64) -> (Option<f64>, &'static str) {
     let last_above = curve.total.iter().rposition(|&s| s > target);
     match last_above {
-        None => TargetResult { target, time_s: Some(curve.tau_s[0]), note: "below the target from the first cycle on".into() },
+        None => (Some(curve.tau_s[0]), "below the target from the first cycle on"),
         Some(i) if i + 1 == curve.tau_s.len() => {
             // Beyond the grid the locked laser averages as white frequency noise.
             let t = (sigma_1s_eq / target) * (sigma_1s_eq / target);
             if t.is_finite() && t > curve.tau_s[i] && model.total(t) <= target * (1.0 + 1e-3) {
-                TargetResult { target, time_s: Some(t), note: "extrapolated as white frequency noise beyond the last averaging time".into() }
+                (Some(t), "extrapolated as white frequency noise beyond the last averaging time")
             } else {
-                TargetResult { target, time_s: None, note: "not reached within the modelled averaging times".into() }
+                (None, "not reached within the modelled averaging times")
             }
         }
         Some(i) => {
@@ -629,7 +638,7 @@ fn time_to_target(model: &Model, curve: &Curve, target: f64, sigma_1s_eq: f64) -
                     break;
                 }
             }
-            TargetResult { target, time_s: Some(libm::exp(b)), note: "found on the computed curve".into() }
+            (Some(libm::exp(b)), "found on the computed curve")
         }
     }
 }

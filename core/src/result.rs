@@ -141,6 +141,8 @@ pub struct TargetResult {
     pub time_s: Option<f64>,
     /// Why `time_s` is absent, or how it was found.
     pub note: String,
+    /// The mechanism with the largest share of the variance at `time_s` (absent with it).
+    pub dominant: Option<Mechanism>,
 }
 
 #[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]

@@ -51,3 +51,26 @@ fn probes_beyond_the_lifetime_gain_nothing() {
         assert!(sigma(0.01 * lifetime) > 3.0 * best);
     }
 }
+
+/// The mechanism named as the limit at the time to the target is the largest of the three
+/// parts the locked-laser model gives at that very time (`locked_variances`, its slow twin:
+/// the parts computed again at that one tau), for every demo design and several targets.
+#[test]
+fn limit_at_the_target_time_is_the_largest_part_there() {
+    use clockwright_core::budget::locked_variances;
+    use clockwright_core::result::Mechanism;
+    for d in demo::designs() {
+        for target in [1e-16, 1e-17, 1e-18, 3e-19] {
+            let e = evaluate(&d, &EvalOptions { target_instability: target, ..EvalOptions::default() }).unwrap();
+            match e.target.time_s {
+                None => assert_eq!(e.target.dominant, None),
+                Some(t) => {
+                    let (p, _) = locked_variances(&d, &[t]).unwrap()[0];
+                    let k = (0..3).fold(0, |k, i| if p[i] > p[k] { i } else { k });
+                    let want = [Mechanism::Laser, Mechanism::Projection, Mechanism::Dick][k];
+                    assert_eq!(e.target.dominant, Some(want), "{} at {t} s: parts {p:?}", d.name);
+                }
+            }
+        }
+    }
+}

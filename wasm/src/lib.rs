@@ -258,7 +258,13 @@ export interface Curve {
   mod_total: number[];
   free_laser: number[];
 }
-export interface TargetResult { target: number; time_s: number | null; note: string; }
+export interface TargetResult {
+  target: number;
+  time_s: number | null;
+  note: string;
+  /** The mechanism with the largest share of the variance at time_s (null without it). */
+  dominant: Mechanism | null;
+}
 export interface Limits {
   probe_phase_rms_rad: number;
   coherence_probe_limit_s: number | null;

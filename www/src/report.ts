@@ -3,7 +3,7 @@
 // engine's evaluations; every user string goes in as text.
 
 import { clear, h, rich } from "./dom";
-import type { Design, Evaluation, Mechanism } from "./engine";
+import type { Design } from "./engine";
 import { MECHANISM_TEXT, plainNumber, type Result } from "./exports";
 import { appendDuration, appendNumber, inputText, tauName } from "./format";
 
@@ -82,29 +82,6 @@ export function plainDuration(seconds: number): string {
   return `${plainNumber(seconds)} s${big ? ` (${(seconds / big[0]).toPrecision(3)} ${big[1]})` : ""}`;
 }
 
-/** The mechanism with the largest share of the variance at the curve point nearest `tau`. */
-export function dominantAt(e: Evaluation, tau: number): Mechanism | null {
-  const c = e.curve;
-  let best = -1;
-  let dist = Infinity;
-  for (let i = 0; i < c.tau_s.length; i++) {
-    const d = Math.abs(Math.log(c.tau_s[i] / tau));
-    if (Number.isFinite(d) && d < dist) {
-      dist = d;
-      best = i;
-    }
-  }
-  if (best < 0) return null;
-  const parts: [Mechanism, number][] = [
-    ["laser", c.laser[best]],
-    ["projection", c.projection[best]],
-    ["dick", c.dick[best]],
-  ];
-  const finite = parts.filter(([, v]) => Number.isFinite(v));
-  if (finite.length === 0) return null;
-  return finite.reduce((a, b) => (b[1] > a[1] ? b : a))[0];
-}
-
 /**
  * The proposal paragraph for one design: the projected instability at 1 s equivalent and at
  * the checkpoints, the time to reach the target, what limits it, the model's caveat and the
@@ -123,7 +100,7 @@ export function proposalText(r: Result): string {
   );
   const t = e.target;
   if (t.time_s !== null) {
-    const lim = dominantAt(e, t.time_s);
+    const lim = t.dominant;
     s.push(`It reaches the target instability of ${plainNumber(t.target)} after ${plainDuration(t.time_s)} of averaging${lim ? `, where ${MECHANISM_TEXT[lim]} limits it` : ""}.`);
   } else {
     s.push(`It does not reach the target instability of ${plainNumber(t.target)} within the averaging times computed${t.note ? ` (${t.note.replace(/\.$/, "")})` : ""}.`);
@@ -231,7 +208,7 @@ export function drawReport(el: HTMLElement, results: Result[], target: number): 
 
     const limits = h("ul", { class: "notes" });
     if (e.target.time_s !== null) {
-      const lim = dominantAt(e, e.target.time_s);
+      const lim = e.target.dominant;
       if (lim) limits.append(h("li", { text: `At the time to the target, ${MECHANISM_TEXT[lim]} dominates.` }));
     }
     const coh = h("li", {}, "Laser phase excursion over the probe ");
