@@ -106,6 +106,24 @@ fn integral_of_g_is_the_slope_of_the_line() {
     }
 }
 
+/// Slow twin of the m-th complex Fourier coefficient of g(t): composite Simpson on 400 000
+/// intervals of (1/T_c) integral g(t) exp(-2 pi i m t / T_c) dt, as (re, im).
+fn simpson_coefficient(gf: &SensitivityFunction, m: usize) -> (f64, f64) {
+    let tc = gf.cycle_s;
+    let n = 400_000;
+    let dt = tc / n as f64;
+    let (mut re, mut im) = (0.0, 0.0);
+    for k in 0..=n {
+        let t = (k as f64 * dt).min(tc * (1.0 - 1e-15));
+        let w = if k == 0 || k == n { 1.0 } else if k % 2 == 1 { 4.0 } else { 2.0 };
+        let g = gf.at(t);
+        let ph = -2.0 * PI * m as f64 * t / tc;
+        re += w * g * ph.cos();
+        im += w * g * ph.sin();
+    }
+    (re * dt / 3.0 / tc, im * dt / 3.0 / tc)
+}
+
 /// The closed-form Fourier coefficients against direct quadrature (composite Simpson on
 /// 400 000 intervals) of the same g(t), on random sequences.
 #[test]
@@ -116,21 +134,8 @@ fn fourier_coefficients_match_direct_quadrature() {
         let gf = SensitivityFunction::new(&probe, 0.3 / probe.duration_s()).unwrap();
         let ms = [1usize, 2, 3, 7, 20, 51, 150];
         let fast = fourier_coefficients(&gf, 150);
-        let tc = probe.cycle_s;
-        let n = 400_000;
-        let dt = tc / n as f64;
         for &m in &ms {
-            let (mut re, mut im) = (0.0, 0.0);
-            for k in 0..=n {
-                let t = (k as f64 * dt).min(tc * (1.0 - 1e-15));
-                let w = if k == 0 || k == n { 1.0 } else if k % 2 == 1 { 4.0 } else { 2.0 };
-                let g = gf.at(t);
-                let ph = -2.0 * PI * m as f64 * t / tc;
-                re += w * g * ph.cos();
-                im += w * g * ph.sin();
-            }
-            re *= dt / 3.0 / tc;
-            im *= dt / 3.0 / tc;
+            let (re, im) = simpson_coefficient(&gf, m);
             let c = fast[m - 1];
             let scale = c.norm_sqr().sqrt().max(1e-6);
             assert!(((c.re - re).powi(2) + (c.im - im).powi(2)).sqrt() < 1e-6 * scale.max(1e-3), "case {case} m {m}: {c} vs {re}+{im}i");
@@ -159,20 +164,8 @@ fn fourier_coefficients_of_many_piece_pulses_match_direct_quadrature() {
         let m_switch = (3.0 * tc / (2.0 * PI * h)) as usize;
         let ms = [1usize, 5, 37, m_switch.saturating_sub(1).max(1), m_switch + 2, 2 * m_switch + 3];
         let fast = fourier_coefficients(&gf, *ms.iter().max().unwrap());
-        let n = 400_000;
-        let dt = tc / n as f64;
         for &m in &ms {
-            let (mut re, mut im) = (0.0, 0.0);
-            for k in 0..=n {
-                let t = (k as f64 * dt).min(tc * (1.0 - 1e-15));
-                let w = if k == 0 || k == n { 1.0 } else if k % 2 == 1 { 4.0 } else { 2.0 };
-                let g = gf.at(t);
-                let ph = -2.0 * PI * m as f64 * t / tc;
-                re += w * g * ph.cos();
-                im += w * g * ph.sin();
-            }
-            re *= dt / 3.0 / tc;
-            im *= dt / 3.0 / tc;
+            let (re, im) = simpson_coefficient(&gf, m);
             let c = fast[m - 1];
             let gmax = gf.max_abs();
             assert!(((c.re - re).powi(2) + (c.im - im).powi(2)).sqrt() < 1e-7 * gmax, "case {case} m {m} ({pieces} pieces): {c} vs {re}+{im}i");

@@ -167,14 +167,7 @@ pub fn run_study(bytes: &[u8]) -> Outcome {
                 Err(e) => Outcome::Refused(e),
                 Ok(mut run) => {
                     let p = run.advance(STEP);
-                    let mut bad = crate::finite::non_finite(&p);
-                    if run.is_finished() {
-                        match run.result() {
-                            Ok(r) => bad.extend(crate::finite::non_finite(&r)),
-                            Err(e) => return Outcome::Refused(e),
-                        }
-                    }
-                    Outcome::Accepted(bad)
+                    walk_steps(&p, run.is_finished(), || run.result())
                 }
             }
         }
@@ -182,17 +175,22 @@ pub fn run_study(bytes: &[u8]) -> Outcome {
             Err(e) => Outcome::Refused(e),
             Ok(mut run) => {
                 let p = run.advance(STEP);
-                let mut bad = crate::finite::non_finite(&p);
-                if run.is_finished() {
-                    match run.result() {
-                        Ok(r) => bad.extend(crate::finite::non_finite(&r)),
-                        Err(e) => return Outcome::Refused(e),
-                    }
-                }
-                Outcome::Accepted(bad)
+                walk_steps(&p, run.is_finished(), || run.result())
             }
         },
     }
+}
+
+/// A study run's first steps `progress`, and its result when the run `finished` with them.
+fn walk_steps<P: Serialize, R: Serialize>(progress: &P, finished: bool, result: impl FnOnce() -> Result<R, InputError>) -> Outcome {
+    let mut bad = crate::finite::non_finite(progress);
+    if finished {
+        match result() {
+            Ok(r) => bad.extend(crate::finite::non_finite(&r)),
+            Err(e) => return Outcome::Refused(e),
+        }
+    }
+    Outcome::Accepted(bad)
 }
 
 // ----- CSV files --------------------------------------------------------------------------
