@@ -128,6 +128,7 @@ fn filtered_shapes_match_integration() {
 /// Several spectra integrated on shared nodes (`variances`) against each one integrated
 /// alone (`variance`, its slow twin: the spectrum evaluated once per integral): the same
 /// numbers bit for bit, for both variances, on random spectra with kinks and random tau.
+/// (The integrals themselves: IEEE Trans. Instrum. Meas. IM-20, 105 (1971), checked above.)
 #[test]
 fn shared_node_integrals_equal_single_ones_bit_for_bit() {
     let mut rng = common::Rng(1201);
@@ -155,7 +156,8 @@ fn shared_node_integrals_equal_single_ones_bit_for_bit() {
 /// The locked laser's curve of a design whose laser has a table (its three
 /// transfer-function integrals made on shared nodes) against each integral made alone
 /// from the public spectrum (slow twin): laser part, modified deviation and free-running
-/// deviation, on random tables, servos and averaging times.
+/// deviation, on random tables, servos and averaging times. Power-law closed forms:
+/// IEEE Std 1139-2008; drift: sigma^2 = D^2 tau^2 / 2 (IEEE Std 1139-2008, linear drift).
 #[test]
 fn table_laser_curve_equals_separate_integrals() {
     use clockwright_core::noise::{NoiseTerm, Spectrum, SpectrumTable, SpectrumUnit};

@@ -131,7 +131,8 @@ fn dick_scaling_laws() {
 
 /// Laser terms of one exponent are summed into one when the spectrum is built (S_y is
 /// linear in them): S_y at random frequencies against the direct sum over the terms as
-/// written (slow twin), and an evaluation with a term split in two against the term whole.
+/// written (slow twin), and an evaluation with a term split in two against the term whole
+/// (white frequency noise h0 = 2 sigma_y(1 s)^2, IEEE Std 1139-2008).
 #[test]
 fn terms_of_one_exponent_sum_into_one() {
     use clockwright_core::noise::{NoiseTerm, Spectrum, SpectrumUnit};

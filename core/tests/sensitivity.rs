@@ -146,7 +146,8 @@ fn fourier_coefficients_match_direct_quadrature() {
 /// Long pulses of many Rabi cycles under decay (hundreds of g(t) pieces, whose integrals
 /// the harmonic generator takes four at a time, by Taylor form and by moments): the
 /// Fourier coefficients against direct quadrature (composite Simpson on 400 000
-/// intervals) of the same g(t), at harmonics on both sides of the Taylor/moment switch.
+/// intervals) of the same g(t), at harmonics on both sides of the Taylor/moment switch
+/// (Fourier coefficients as defined in IEEE Trans. UFFC 45, 887 (1998)).
 #[test]
 fn fourier_coefficients_of_many_piece_pulses_match_direct_quadrature() {
     let mut rng = Rng(909);
