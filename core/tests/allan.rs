@@ -157,7 +157,7 @@ fn shared_node_integrals_equal_single_ones_bit_for_bit() {
 /// transfer-function integrals made on shared nodes) against each integral made alone
 /// from the public spectrum (slow twin): laser part, modified deviation and free-running
 /// deviation, on random tables, servos and averaging times. Power-law closed forms:
-/// IEEE Std 1139-2008; drift: sigma^2 = D^2 tau^2 / 2 (IEEE Std 1139-2008, linear drift).
+/// IEEE Std 1139-2008; linear drift D: sigma^2 = D^2 tau^2 / 2 (common practice).
 #[test]
 fn table_laser_curve_equals_separate_integrals() {
     use clockwright_core::noise::{NoiseTerm, Spectrum, SpectrumTable, SpectrumUnit};
